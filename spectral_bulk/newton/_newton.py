@@ -1,0 +1,414 @@
+"""Newton-Kantorovich iteration with affine-invariant damping.
+
+The damping strategy is the error-oriented one with the natural monotonicity
+test ("Newton Methods for Nonlinear Problems: Affine Invariance and Adaptive
+Algorithms", Springer Series in Computational Mathematics 35, 2004,
+:doi:`10.1007/978-3-642-23899-4`, chapter 3): a trial step ``u + lam dx`` is accepted
+when the simplified correction ``dxbar = -J(u)^{-1} F(u + lam dx)`` satisfies
+``||dxbar|| < (1 - lam/4) ||dx||``; otherwise ``lam`` is reduced using the local
+Lipschitz estimate, and a too-small ``lam`` means the iteration diverges from
+this guess.  Norms are the scaled update norm defined in :class:`NewtonOptions`.
+"""
+
+import dataclasses
+import functools
+import time
+
+import numpy as np
+
+from .._utils import EPS, emit_user_level_warning, validate_tol
+from ..exceptions import ConvergenceError, ConvergenceWarning, ProblemDefinitionError, SingularJacobianError
+from ._linalg import assemble_dense, make_solver
+from ._problem import Problem
+from ._result import SolveResult
+
+__all__ = ["solve", "NewtonOptions", "MESSAGES", "check_jacobian", "initial_state", "scaled_norm",
+           "residual_norm"]
+
+#: Status codes of :func:`solve`; 0 is success.  Messages are templates.
+MESSAGES = {
+    0: "converged: update {update:.1e}, residual {residual:.1e} and spectral tails "
+       "(worst {tail:.1e}) below tolerance {tol:.1e}",
+    1: "iteration limit reached ({max_iter} iterations) with update {update:.1e} above "
+       "tolerance {tol:.1e}: raise `max_iter` or improve the guess",
+    2: "singular Jacobian (reciprocal condition estimate {rcond:.1e}): the problem is "
+       "degenerate at this point (fold, branch point, missing condition or gauge freedom)",
+    3: "non-finite residual ({where}): check the equations' domain and the guess",
+    4: "damping factor fell below {lambda_min:.0e}: Newton diverges from this guess; "
+       "start closer to a solution or follow a branch with continuation",
+    5: "Newton converged but the spectral tail is above {tail_tol:.1e} in field(s) "
+       "{fields}: the grid is too coarse, increase the number of points or adapt the map",
+    6: "update converged but the residual stagnates at {residual:.1e} above tolerance "
+       "{tol:.1e}: the problem is ill-conditioned at this resolution",
+    7: "linear solver failed: {why}",
+}
+
+
+@dataclasses.dataclass
+class NewtonOptions:
+    """Tolerances and algorithm constants of :func:`solve`.
+
+    Attributes
+    ----------
+    tol : float
+        Tolerance on the scaled update norm
+        ``max_f ||dx_f||_inf / max(||u_f||_inf, scale_f)`` and on the scaled
+        residual (componentwise backward error)
+        ``max_{j,p} |F_j[p]| / sum_{i,alpha} |A[j,i,alpha,p]| w_i R_alpha[p]``
+        with ``w_i = max(||u_i||_inf, scale_i)`` and ``R_alpha`` the absolute row
+        sums of ``D^alpha``: the residual relative to the size of the terms of the
+        linearised equation.
+    tail_tol : float or None
+        Tolerance on each field's spectral tail; ``None`` means ``tol``.
+    max_iter : int
+        Maximum number of Newton iterations (Jacobian evaluations).
+    damping : bool
+        Use the affine-invariant damping; ``False`` gives undamped Newton.
+    lambda_init, lambda_min : float
+        First damping factor, and the factor below which the iteration is
+        declared divergent.
+    linear_solver : {"auto", "dense", "gmres"}
+        ``auto``: dense LU in 1-D and for small systems, GMRES otherwise.
+    linear_rtol : float or None
+        GMRES relative tolerance; ``None`` derives ``min(1e-3, 1e-2 tol)`` from
+        ``tol`` (an inexact Newton step with relative error ``eta`` changes the
+        converged update by ``eta ||dx||``, so ``eta = 1e-2 tol`` keeps the final
+        update accurate to well within ``tol``).
+    """
+
+    tol: float = 1e-10
+    tail_tol: float | None = None
+    max_iter: int = 50
+    damping: bool = True
+    lambda_init: float = 1.0
+    lambda_min: float = 1e-8
+    linear_solver: str = "auto"
+    linear_rtol: float | None = None
+
+    def validated(self):
+        out = dataclasses.replace(self)
+        out.tol = validate_tol(self.tol)
+        out.tail_tol = out.tol if self.tail_tol is None else validate_tol(self.tail_tol, "tail_tol")
+        if int(self.max_iter) < 1:
+            raise ValueError(f"`max_iter` must be >= 1, got {self.max_iter}")
+        out.max_iter = int(self.max_iter)
+        if not 0 < self.lambda_min <= self.lambda_init <= 1:
+            raise ValueError("need 0 < `lambda_min` <= `lambda_init` <= 1")
+        if out.linear_rtol is None:
+            out.linear_rtol = max(min(1e-3, 1e-2 * out.tol), 10 * EPS)
+        return out
+
+
+def _status_docs():
+    lines = ["Status codes", "------------"]
+    for k, v in MESSAGES.items():
+        lines.append(f"{k} : {v.split(':')[0]}")
+    return "\n".join(lines)
+
+
+def scaled_norm(problem, dx, u):
+    """``max_f ||dx_f||_inf / max(||u_f||_inf, scale_f)``."""
+    d = np.abs(problem.split(dx)).max(axis=1)
+    w = np.maximum(np.abs(problem.split(u)).max(axis=1), problem.scales)
+    return float((d / w).max())
+
+
+def _row_sums(problem):
+    """Absolute row sums of every derivative operator, shape ``(nalpha, npoints)``."""
+    out = []
+    for alpha in problem.alphas:
+        parts = [np.ones(b.n) if o == 0 else np.abs(b.diff_matrices(o)[o - 1]).sum(axis=1)
+                 for b, o in zip(problem.grid.axes, alpha)]
+        out.append(functools.reduce(np.multiply.outer, parts).ravel())
+    return np.stack(out)
+
+
+def residual_norm(problem, F, A, u):
+    """Componentwise backward error of the residual (see :class:`NewtonOptions`)."""
+    w = np.maximum(np.abs(problem.split(u)).max(axis=1), problem.scales)
+    R = _row_sums(problem)  # (na, npts)
+    scale = np.einsum("jikp,i,kp->jp", np.abs(A), w, R)
+    F = problem.split(F)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        r = np.where(scale > 0, np.abs(F) / np.where(scale > 0, scale, 1.0), np.abs(F))
+    return float(r.max())
+
+
+def initial_state(problem, guess):
+    """Flat state vector from a guess (callable, dict, array or previous result)."""
+    grid = problem.grid
+    nf = problem.nfields
+    if isinstance(guess, SolveResult):
+        missing = [f for f in problem.fields if f not in guess.fields]
+        if missing:
+            raise ProblemDefinitionError(f"the previous result has no field(s) {missing}")
+        if guess.grid == grid:
+            vals = [guess.fields[f] for f in problem.fields]
+        else:
+            mesh = [grid.coords[n] for n in grid.names]
+            ev = guess(*mesh)
+            if not isinstance(ev, dict):
+                ev = {guess.problem.fields[0]: ev}
+            vals = [ev[f] for f in problem.fields]
+        guess = dict(zip(problem.fields, vals))
+    elif callable(guess):
+        mesh = [grid.coords[n].reshape(grid.shape) for n in grid.names]
+        try:
+            guess = guess(*mesh)
+        except Exception as exc:
+            raise ProblemDefinitionError(f"the guess function failed: {exc}") from exc
+    if isinstance(guess, dict):
+        unknown = set(guess) - set(problem.fields)
+        if unknown:
+            raise ProblemDefinitionError(
+                f"guess names unknown field(s) {sorted(unknown)}; fields are {list(problem.fields)}"
+            )
+        missing = [f for f in problem.fields if f not in guess]
+        if missing:
+            raise ProblemDefinitionError(f"guess is missing field(s) {missing}")
+        arrs = []
+        for f in problem.fields:
+            try:
+                arrs.append(np.broadcast_to(np.asarray(guess[f], dtype=float), grid.shape).ravel())
+            except ValueError:
+                raise ProblemDefinitionError(
+                    f"guess for field {f!r} has shape {np.shape(guess[f])}, expected {grid.shape}"
+                ) from None
+        state = np.concatenate(arrs)
+    else:
+        arr = np.asarray(guess, dtype=float)
+        if arr.size == problem.size:
+            state = arr.ravel().copy()
+        elif nf == 1 and arr.size in (1, grid.size):
+            state = np.broadcast_to(arr, grid.shape).ravel().copy()
+        else:
+            raise ProblemDefinitionError(
+                f"guess has shape {arr.shape}; expected {(nf,) + grid.shape} or a dict by field"
+            )
+    if not np.all(np.isfinite(state)):
+        bad = [f for f, v in zip(problem.fields, problem.split(state)) if not np.all(np.isfinite(v))]
+        raise ProblemDefinitionError(f"the guess has non-finite values (NaN or inf) in field(s) {bad}")
+    return state
+
+
+def solve(problem, guess, *, params=None, tol=None, max_iter=None, damping=None,
+          tail_tol=None, linear_solver=None, raise_on_failure=False, options=None):
+    """Solve a :class:`~spectral_bulk.Problem` by damped Newton-Kantorovich iteration.
+
+    Parameters
+    ----------
+    problem : Problem
+    guess : callable, dict, ndarray or SolveResult
+        Initial state: ``guess(*coords) -> dict`` (or an array for one field)
+        evaluated on the grid-shaped coordinate arrays; a dict field -> values;
+        an array of shape ``(nfields,) + grid.shape``; or a previous result,
+        interpolated onto this grid.
+    params : dict, optional
+        Parameter values overriding ``problem.params``.
+    tol, max_iter, damping, tail_tol, linear_solver :
+        Shortcuts for the fields of :class:`NewtonOptions`.
+    raise_on_failure : bool
+        Raise :class:`~spectral_bulk.exceptions.ConvergenceError` instead of
+        returning a failed result (which is the default, with a warning).
+    options : NewtonOptions, optional
+
+    Returns
+    -------
+    SolveResult
+        Always returned (unless ``raise_on_failure``); check ``converged``.
+
+    Raises
+    ------
+    ProblemDefinitionError
+        The callbacks are malformed (wrong count or shape of residuals, unknown
+        names) or the guess is not finite.
+
+    Warns
+    -----
+    ConvergenceWarning
+        When the result fails its certificate.
+
+    Notes
+    -----
+    Converged means: the scaled update is below ``tol``, the scaled residual is
+    below ``tol`` and each field's spectral tail is below ``tail_tol``.
+
+    {status_docs}
+    """
+    if not isinstance(problem, Problem):
+        raise TypeError(f"`problem` must be a Problem, got {type(problem).__name__}")
+    opts = dataclasses.replace(options or NewtonOptions())
+    for k, v in dict(tol=tol, max_iter=max_iter, damping=damping, tail_tol=tail_tol,
+                     linear_solver=linear_solver).items():
+        if v is not None:
+            setattr(opts, k, v)
+    opts = opts.validated()
+    t0 = time.perf_counter()
+    params = problem.merged_params(params)
+    u = initial_state(problem, guess)
+    problem.check(u, params)
+    res = _newton(problem, u, params, opts)
+    res.wall_time = time.perf_counter() - t0
+    if not res.converged:
+        if raise_on_failure:
+            raise ConvergenceError(res.message, res)
+        emit_user_level_warning(f"{problem.name}: {res.message}", ConvergenceWarning)
+    return res
+
+
+solve.__doc__ = solve.__doc__.replace("{status_docs}", _status_docs().replace("\n", "\n    "))
+
+
+def _newton(problem, u, params, opts):
+    tol = opts.tol
+    info = dict(nfev=0, njev=0, residual_norms=[], update_norms=[], damping=[], tol=tol)
+    fmt = dict(tol=tol, max_iter=opts.max_iter, lambda_min=opts.lambda_min, tail_tol=opts.tail_tol,
+               update=np.nan, residual=np.nan, tail=np.nan, rcond=np.nan, where="", fields="",
+               why="")
+
+    def finish(status, state, A=None, F=None, rcond=np.nan, solver=None):
+        tails = problem.grid.tail(problem.split(state), problem.scales)
+        tail = dict(zip(problem.fields, map(float, tails)))
+        if F is None:
+            F = problem.residual(state, params)
+            info["nfev"] += 1
+        if A is not None and np.all(np.isfinite(F)):
+            r = residual_norm(problem, F, A, state)
+        else:
+            r = float(np.nan)
+        if status == 0:
+            if r > tol:
+                status = 6
+            elif max(tails) > opts.tail_tol:
+                status = 5
+                fmt["fields"] = ", ".join(f for f, t in tail.items() if t > opts.tail_tol)
+        fmt.update(residual=r, tail=float(max(tails)), rcond=rcond,
+                   update=info["update_norms"][-1] if info["update_norms"] else np.nan)
+        return SolveResult(problem, state, params, status=status, message=MESSAGES[status].format(**fmt),
+                           iterations=info["njev"], residual=r,
+                           update=fmt["update"], tail=tail, condition=rcond,
+                           linear_solver=getattr(solver, "kind", None), **info)
+
+    lam = opts.lambda_init
+    prev = None  # (norm dx, dxbar, lam) of the previous iteration
+    A = rcond = solver = None
+    for _ in range(opts.max_iter):
+        F, A = problem.linearize(u, params)
+        info["nfev"] += 1
+        info["njev"] += 1
+        if not np.all(np.isfinite(F)) or not np.all(np.isfinite(A)):
+            fmt["where"] = "in the residual or its linearisation at iteration " + str(info["njev"])
+            return finish(3, u, F=F)
+        info["residual_norms"].append(residual_norm(problem, F, A, u))
+        try:
+            solver = make_solver(problem, A, opts.linear_solver, rtol=opts.linear_rtol)
+            rcond = solver.rcond
+            dx = -solver.solve(F)
+        except SingularJacobianError:
+            return finish(2, u, A=A, F=F, rcond=getattr(solver, "rcond", 0.0), solver=solver)
+        except (ValueError, RuntimeError) as exc:  # pragma: no cover - defensive
+            fmt["why"] = str(exc)
+            return finish(7, u, A=A, F=F, solver=solver)
+        if not np.all(np.isfinite(dx)):
+            fmt["why"] = "non-finite Newton update"
+            return finish(7, u, A=A, F=F, solver=solver)
+        ndx = scaled_norm(problem, dx, u)
+        info["update_norms"].append(ndx)
+        if ndx <= tol:
+            u = u + dx
+            info["damping"].append(1.0)
+            return finish(0, u, A=A, rcond=rcond, solver=solver)
+        if opts.damping and prev is not None:
+            ndx_prev, dxbar_prev, lam_prev = prev
+            denom = scaled_norm(problem, dxbar_prev - dx, u) * ndx
+            mu = ndx_prev * scaled_norm(problem, dxbar_prev, u) / denom * lam_prev if denom > 0 else 1.0
+            lam = min(1.0, mu)
+        while True:
+            if lam < opts.lambda_min:
+                fmt["update"] = ndx
+                return finish(4, u, A=A, F=F, rcond=rcond, solver=solver)
+            trial = u + lam * dx
+            Ft = problem.residual(trial, params)
+            info["nfev"] += 1
+            if not np.all(np.isfinite(Ft)):
+                if not opts.damping:
+                    fmt["where"] = f"after an undamped step at iteration {info['njev']}"
+                    return finish(3, u, A=A, F=F, solver=solver)
+                lam /= 2
+                continue
+            if not opts.damping:
+                dxbar = None
+                break
+            try:
+                dxbar = -solver.solve(Ft)
+            except SingularJacobianError:  # pragma: no cover - same matrix as above
+                return finish(2, u, A=A, F=F, rcond=rcond, solver=solver)
+            theta = scaled_norm(problem, dxbar, u) / ndx
+            dd = scaled_norm(problem, dxbar - (1 - lam) * dx, u)
+            mu_p = 0.5 * ndx * lam**2 / dd if dd > 0 else np.inf
+            if theta >= 1 - lam / 4:
+                lam = min(mu_p, lam / 2)
+                continue
+            lam_new = min(1.0, mu_p)
+            if lam_new >= 4 * lam and lam < 1:
+                lam = lam_new
+                continue
+            break
+        info["damping"].append(lam)
+        u = trial
+        if dxbar is not None and lam == 1.0 and scaled_norm(problem, dxbar, u) <= tol:
+            u = u + dxbar  # simplified-Newton correction already below tolerance
+            info["update_norms"].append(scaled_norm(problem, dxbar, u))
+            return finish(0, u, A=A, rcond=rcond, solver=solver)
+        prev = (ndx, dxbar, lam) if dxbar is not None else None
+    fmt["update"] = info["update_norms"][-1]
+    return finish(1, u, A=A, rcond=rcond, solver=solver)
+
+
+def check_jacobian(problem, state=None, params=None, *, guess=None, step=None):
+    """Compare the assembled Jacobian with central finite differences of ``F``.
+
+    Parameters
+    ----------
+    problem : Problem
+    state : ndarray or SolveResult, optional
+        Where to compare (default: ``guess`` turned into a state).
+    params : dict, optional
+    step : float, optional
+        Relative finite-difference step; default ``EPS**(1/3)`` (optimal for
+        central differences).
+
+    Returns
+    -------
+    float
+        The worse of two relative discrepancies: the assembled Jacobian against
+        column-by-column central differences of ``F``,
+        ``max |J - J_fd| / max(1, max |J_fd|)``, and the pointwise coefficients
+        against central differences of the callbacks, per field pair and
+        derivative ``max_p |A - A_fd| / max(1, max_p |A_fd|)`` (this one sees an
+        error in a small coefficient next to large differentiation-matrix
+        entries).  About ``1e-8`` or below when the residual is complex-safe,
+        order one when it is not (for example with ``abs`` or ``np.maximum``).
+    """
+    if isinstance(state, SolveResult):
+        params = state.params if params is None else params
+        state = state.state
+    if state is None:
+        state = initial_state(problem, guess)
+    params = problem.merged_params(params)
+    u = np.asarray(state, dtype=float)
+    _, A = problem.linearize(u, params)
+    J = assemble_dense(problem, A)
+    h0 = EPS ** (1 / 3) if step is None else float(step)
+    Jfd = np.empty_like(J)
+    for k in range(u.size):
+        h = h0 * max(1.0, abs(u[k]))
+        up, um = u.copy(), u.copy()
+        up[k] += h
+        um[k] -= h
+        Jfd[:, k] = (problem.residual(up, params) - problem.residual(um, params)) / (2 * h)
+    _, A_fd = problem._linearize_fd(problem.derivatives(u), params)
+    coeff = np.abs(A - A_fd).max(axis=-1) / np.maximum(1.0, np.abs(A_fd).max(axis=-1))
+    full = np.abs(J - Jfd).max() / max(1.0, np.abs(Jfd).max())
+    return float(max(full, coeff.max()))
+

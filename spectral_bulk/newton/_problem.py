@@ -1,0 +1,398 @@
+"""Pointwise boundary-value problems on a collocation grid.
+
+A :class:`Problem` binds a grid, field names, a pointwise residual, boundary
+conditions and parameters.  It evaluates the discretised operator F(U) and its
+exact linearisation by complex-step differentiation of the pointwise callbacks:
+
+    F_j(U)[p] = E_j(c[p], {D^alpha U_i [p]}, params)      (interior rows)
+    F_j(U)[p] = B_j(c[p], {D^alpha U_i [p]}, params)      (boundary rows)
+    dF_j/dU_i = sum_alpha diag(A[j, i, alpha, :]) D^alpha
+    A[j, i, alpha, p] = Im E_j(... D^alpha U_i[p] + i h ...) / h
+
+which is exact to rounding for residuals that are real-analytic in their
+arguments ("complex-safe": no ``abs``, ``maximum``, ``conj`` or comparisons on
+the fields) [1]_.
+
+References
+----------
+.. [1] "The complex-step derivative approximation", ACM Trans. Math. Softw. 29
+   (2003) 245-262, :doi:`10.1145/838250.838251`.
+"""
+
+import numpy as np
+
+from ..exceptions import ProblemDefinitionError
+from ..grids import as_grid
+
+__all__ = ["Problem", "Namespace"]
+
+_H = 1e-30  # complex step: any tiny h works, the derivative carries no cancellation
+_FD_STEP = np.finfo(float).eps ** (1 / 3)  # optimal relative step of central differences
+
+
+class Namespace:
+    """Attribute access to named arrays with a clear error for unknown names."""
+
+    __slots__ = ("_data", "_what")
+
+    def __init__(self, data, what):
+        object.__setattr__(self, "_data", data)
+        object.__setattr__(self, "_what", what)
+
+    def __getattr__(self, name):
+        data = object.__getattribute__(self, "_data")
+        try:
+            return data[name]
+        except KeyError:
+            what = object.__getattribute__(self, "_what")
+            known = ", ".join(sorted(data)) if len(data) < 40 else ", ".join(sorted(data)[:40]) + ", ..."
+            raise ProblemDefinitionError(f"unknown {what} {name!r}; known: {known}") from None
+
+    def __getitem__(self, name):
+        return self.__getattr__(name)
+
+    def __contains__(self, name):
+        return name in object.__getattribute__(self, "_data")
+
+    def __setattr__(self, name, value):
+        raise AttributeError("namespaces passed to callbacks are read-only")
+
+    def keys(self):
+        return object.__getattribute__(self, "_data").keys()
+
+    def __repr__(self):
+        return f"Namespace({', '.join(self.keys())})"
+
+
+def _callable_name(fun):
+    return getattr(fun, "__qualname__", None) or repr(fun)
+
+
+class Problem:
+    """A boundary-value problem written pointwise.
+
+    Parameters
+    ----------
+    grid : Chebyshev, Fourier or Grid
+        Collocation grid (a single basis means a one-dimensional problem).
+    fields : sequence of str
+        Names of the unknown functions, e.g. ``["u", "v"]``.
+    equations : callable
+        ``equations(c, f, p) -> sequence (or dict by field name) of arrays``, one
+        residual per field, evaluated pointwise: ``c.<coord>`` are coordinate
+        arrays, ``f.<field>`` and ``f.<field>_<coords>`` the fields and their
+        derivatives (``f.u_x``, ``f.u_xx``; in 2-D ``f.u_z``, ``f.u_zx``, ...),
+        ``p.<name>`` the parameters.  Arrays may carry a leading batch axis
+        (used for the linearisation), so write elementwise, complex-safe code.
+    boundary : dict, optional
+        Maps each end of a non-periodic direction (``"left"``, ``"right"``,
+        ``"x=0"``, ``"x=a"``, ...) to ``cond(c, f, p) -> sequence`` (or dict) with
+        one entry per field.  The entry for field ``i`` replaces equation ``i`` at
+        that end; ``None`` keeps the equation itself there (use it at regular
+        singular points such as horizons, where the equation degenerates into a
+        regularity condition).  Ends that are not listed keep all equations.
+    params : dict, optional
+        Parameter values by name (floats).  They can be changed per solve.
+    max_order : int
+        Highest total derivative order made available to the callbacks (2).
+    scales : dict, optional
+        Per-field size floor used by the norms (default 1): update, tail and
+        residual norms are relative to ``max(max|u_f|, scale_f)``.
+    name : str, optional
+        A label used in messages and files.
+    linearization : {"complex-step", "finite-difference"}
+        How the pointwise coefficients are obtained.  The complex step is exact
+        to rounding and is the default; central finite differences (relative
+        step ``EPS**(1/3)``, accurate to about ``1e-10``) serve residuals that
+        cannot be made complex-safe and as an independent check.
+
+    Notes
+    -----
+    The unknown vector stacks the fields: ``U[i*size:(i+1)*size]`` is field ``i``
+    at the grid points in C order.
+    """
+
+    def __init__(self, grid, fields, equations, boundary=None, params=None, *,
+                 max_order=2, scales=None, name=None, linearization="complex-step"):
+        self.grid = as_grid(grid)
+        if isinstance(fields, str):
+            fields = [fields]
+        fields = list(fields)
+        if not fields:
+            raise ProblemDefinitionError("`fields` must name at least one field")
+        for fname in fields:
+            if not (isinstance(fname, str) and fname.isidentifier()):
+                raise ProblemDefinitionError(f"field name {fname!r} is not an identifier")
+            if fname in self.grid.names:
+                raise ProblemDefinitionError(f"field name {fname!r} clashes with a coordinate name")
+        if len(set(fields)) != len(fields):
+            raise ProblemDefinitionError(f"duplicate field names in {fields}")
+        self.fields = tuple(fields)
+        if not callable(equations):
+            raise ProblemDefinitionError("`equations` must be callable as equations(c, f, p)")
+        self.equations = equations
+        self.max_order = int(max_order)
+        if self.max_order < 1:
+            raise ProblemDefinitionError("`max_order` must be >= 1")
+        self.params = {}
+        for k, v in dict(params or {}).items():
+            self.params[k] = _as_param(k, v)
+        self.boundary = {}
+        for key, fun in dict(boundary or {}).items():
+            try:
+                face = self.grid.resolve_face(key)
+            except ValueError as exc:
+                raise ProblemDefinitionError(str(exc)) from None
+            if face in self.boundary:
+                raise ProblemDefinitionError(f"boundary key {key!r} repeats an end already given")
+            if fun is not None and not callable(fun):
+                raise ProblemDefinitionError(f"boundary condition for {key!r} must be callable")
+            self.boundary[face] = (key, fun)
+        sc = dict(scales or {})
+        for k in sc:
+            if k not in self.fields:
+                raise ProblemDefinitionError(f"`scales` names unknown field {k!r}")
+        self.scales = np.array([float(sc.get(f, 1.0)) for f in self.fields])
+        self.name = name or _callable_name(equations)
+        if linearization not in ("complex-step", "finite-difference"):
+            raise ProblemDefinitionError(
+                f"`linearization` must be 'complex-step' or 'finite-difference', got {linearization!r}"
+            )
+        self.linearization = linearization
+        self.alphas = self.grid.multi_indices(self.max_order)
+        self._batched = True
+        self._ops = None
+
+    # --------------------------------------------------------------- utilities
+    @property
+    def nfields(self):
+        return len(self.fields)
+
+    @property
+    def size(self):
+        """Number of unknowns (fields times grid points)."""
+        return self.nfields * self.grid.size
+
+    def with_grid(self, grid):
+        """The same problem on another grid (same callbacks, params and scales)."""
+        new = object.__new__(Problem)
+        new.__dict__.update(self.__dict__)
+        new.grid = as_grid(grid)
+        if len(new.grid.axes) != len(self.grid.axes) or new.grid.names != self.grid.names:
+            raise ProblemDefinitionError("a regridded problem must keep the coordinate names")
+        new.boundary = {}
+        for face, (key, fun) in self.boundary.items():
+            new.boundary[new.grid.resolve_face(key)] = (key, fun)
+        new.alphas = new.grid.multi_indices(new.max_order)
+        new._ops = None
+        return new
+
+    def merged_params(self, params=None):
+        """Problem parameters updated by ``params`` (unknown names are an error)."""
+        out = dict(self.params)
+        for k, v in dict(params or {}).items():
+            if k not in out:
+                raise ProblemDefinitionError(
+                    f"unknown parameter {k!r}; the problem defines {sorted(out) or 'none'}"
+                )
+            out[k] = _as_param(k, v)
+        return out
+
+    def split(self, state):
+        """View of a flat state as ``(nfields, size)``."""
+        return np.asarray(state).reshape(self.nfields, self.grid.size)
+
+    def field_dict(self, state):
+        """Dict field name -> nodal values shaped like the grid."""
+        u = self.split(state)
+        return {f: u[i].reshape(self.grid.shape) for i, f in enumerate(self.fields)}
+
+    def derivatives(self, state):
+        """All derivatives ``D^alpha U_i``; shape ``(nfields, nalpha, size)``."""
+        u = self.split(state)
+        return np.stack([self.grid.apply(a, u) if any(a) else u for a in self.alphas], axis=1)
+
+    def _field_names(self, i):
+        return [self.fields[i] + self.grid.deriv_suffix(a) for a in self.alphas]
+
+    def _namespace(self, values):
+        """Field namespace from values shaped ``(nfields, nalpha, ...)``."""
+        data = {}
+        for i, f in enumerate(self.fields):
+            for k, a in enumerate(self.alphas):
+                for suffix in self.grid.deriv_aliases(a):
+                    data[f + suffix] = values[i, k]
+        return Namespace(data, "field or derivative")
+
+    def _coords(self, idx=None):
+        data = {n: (c if idx is None else c[idx]) for n, c in self.grid.coords.items()}
+        return Namespace(data, "coordinate")
+
+    # ----------------------------------------------------------- evaluations
+    def _call(self, fun, c, fvals, params, what, npts):
+        f = self._namespace(fvals)
+        p = Namespace(params, "parameter")
+        out = fun(c, f, p)
+        return self._normalise(out, what, npts, fvals.shape[2:-1])
+
+    def _normalise(self, out, what, npts, batch):
+        if isinstance(out, dict):
+            unknown = set(out) - set(self.fields)
+            if unknown:
+                raise ProblemDefinitionError(f"{what} returned unknown field(s) {sorted(unknown)}")
+            out = [out.get(f) for f in self.fields]
+        elif isinstance(out, np.ndarray) and out.ndim >= 1 and self.nfields > 1 and out.shape[0] == self.nfields:
+            out = list(out)
+        elif not isinstance(out, (list, tuple)):
+            out = [out]
+        if len(out) != self.nfields:
+            raise ProblemDefinitionError(
+                f"{what} returned {len(out)} entries, expected {self.nfields} "
+                f"(one per field: {', '.join(self.fields)})"
+            )
+        res = []
+        target = batch + (npts,)
+        for f, r in zip(self.fields, out):
+            if r is None:
+                res.append(None)
+                continue
+            r = np.asarray(r)
+            try:
+                r = np.broadcast_to(r, target)
+            except ValueError:
+                raise ProblemDefinitionError(
+                    f"{what}: entry for field {f!r} has shape {r.shape}, "
+                    f"expected {(npts,)} (one value per point)"
+                ) from None
+            res.append(r)
+        return res
+
+    def _operators(self):
+        if self._ops is None:
+            faces = []
+            for face, (key, fun) in self.boundary.items():
+                faces.append((face, key, fun, self.grid.faces[face]))
+            self._ops = faces
+        return self._ops
+
+    def _evaluate(self, dvals, params, complex_step=None):
+        """Residual rows (and optionally batched complex-step rows).
+
+        ``dvals`` has shape ``(nfields, nalpha, [batch,] size)``.
+        """
+        npts = self.grid.size
+        c = self._coords()
+        eq = self._call(self.equations, c, dvals, params, f"equations {self.name!r}", npts)
+        for i, e in enumerate(eq):
+            if e is None:
+                raise ProblemDefinitionError(
+                    f"equations returned None for field {self.fields[i]!r}; "
+                    "None is only meaningful in boundary conditions"
+                )
+        rows = np.array(np.stack(eq, axis=0), dtype=complex if complex_step else float)
+        for face, key, fun, idx in self._operators():
+            if fun is None:
+                continue
+            sub = dvals[..., idx]
+            cb = self._coords(idx)
+            bc = self._call(fun, cb, sub, params, f"boundary condition {key!r}", len(idx))
+            for i, b in enumerate(bc):
+                if b is not None:
+                    rows[i, ..., idx] = b
+        return rows
+
+    def residual(self, state, params=None):
+        """The discretised operator F(U), flat, shape ``(size,)``."""
+        params = self.merged_params(params)
+        dv = self.derivatives(state)
+        with np.errstate(all="ignore"):
+            return self._evaluate(dv, params).ravel()
+
+    def linearize(self, state, params=None):
+        """Residual and pointwise linearisation coefficients.
+
+        Returns
+        -------
+        F : ndarray, shape (size,)
+        A : ndarray, shape (nfields, nfields, nalpha, npoints)
+            ``A[j, i, k, p] = dF_j[p] / d(D^{alpha_k} U_i)[p]``.
+        """
+        params = self.merged_params(params)
+        dv = self.derivatives(state)
+        nf, na, npts = dv.shape
+        if self.linearization == "finite-difference":
+            return self._linearize_fd(dv, params)
+        nslot = nf * na
+        with np.errstate(all="ignore"):
+            if self._batched:
+                try:
+                    pert = np.zeros((nf, na, nslot, npts), dtype=complex)
+                    pert += dv[:, :, None, :]
+                    s = np.arange(nslot)
+                    pert[s // na, s % na, s, :] += 1j * _H
+                    rows = self._evaluate(pert, params, complex_step=True)
+                except ProblemDefinitionError:
+                    raise
+                except Exception:  # the callbacks do not broadcast over a batch axis
+                    self._batched = False
+            if not self._batched:
+                rows = np.empty((nf, nslot, npts), dtype=complex)
+                for s in range(nslot):
+                    pert = dv.astype(complex)
+                    pert[s // na, s % na] += 1j * _H
+                    rows[:, s] = self._evaluate(pert, params, complex_step=True)
+        F = rows[:, 0, :].real.ravel()
+        A = (rows.imag / _H).reshape(nf, nf, na, npts)
+        return F, A
+
+    def _linearize_fd(self, dv, params):
+        nf, na, npts = dv.shape
+        with np.errstate(all="ignore"):
+            F = self._evaluate(dv, params)
+            A = np.empty((nf, nf, na, npts))
+            for s in range(nf * na):
+                i, k = divmod(s, na)
+                h = _FD_STEP * np.maximum(1.0, np.abs(dv[i, k]))
+                up, um = dv.copy(), dv.copy()
+                up[i, k] += h
+                um[i, k] -= h
+                A[:, i, k] = (self._evaluate(up, params) - self._evaluate(um, params)) / (2 * h)
+        return F.ravel(), A
+
+    def param_derivative(self, state, name, params=None):
+        """dF/dp for parameter ``name`` (complex step), flat shape ``(size,)``."""
+        params = self.merged_params(params)
+        if name not in params:
+            raise ProblemDefinitionError(f"unknown parameter {name!r}; have {sorted(params)}")
+        dv = self.derivatives(state).astype(complex)
+        p2 = dict(params)
+        p2[name] = params[name] + 1j * _H
+        with np.errstate(all="ignore"):
+            rows = self._evaluate(dv, p2, complex_step=True)
+        return (rows.imag / _H).ravel()
+
+    def check(self, state, params=None):
+        """Evaluate the callbacks once and raise a clear error if they are malformed."""
+        params = self.merged_params(params)
+        u = self.split(state)
+        if not np.all(np.isfinite(u)):
+            bad = [self.fields[i] for i in range(self.nfields) if not np.all(np.isfinite(u[i]))]
+            raise ProblemDefinitionError(f"the initial guess has non-finite values in field(s) {bad}")
+        F = self.residual(state, params)
+        if not np.all(np.isfinite(F)):
+            rows = self.split(F)
+            bad = [self.fields[i] for i in range(self.nfields) if not np.all(np.isfinite(rows[i]))]
+            raise ProblemDefinitionError(
+                f"the residual is not finite at the initial guess in the equation(s) of {bad}"
+            )
+        return F
+
+
+def _as_param(name, value):
+    try:
+        v = complex(value) if isinstance(value, complex) else float(value)
+    except (TypeError, ValueError):
+        raise ProblemDefinitionError(f"parameter {name!r} must be a number, got {value!r}") from None
+    return v
+
+
