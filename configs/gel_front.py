@@ -25,7 +25,8 @@ def build(n=32):
         params={"lam": 1.0, "eps": 0.05},
         name="gel_front",
     )
-    return {"problem": problem, "guess": lambda x: 0 * x, "params": {"lam": 1.0}}
+    return {"problem": problem, "guess": lambda x: 0 * x, "params": {"lam": 1.0},
+            "observables": observables}
 
 
 def observables(solution):

@@ -4,6 +4,8 @@ import logging
 import os
 import sys
 
+import numpy as np
+
 from .._config import SOLVER_KEYS, check_section, check_top_level, load_builder, load_config
 from ..exceptions import ConfigError
 
@@ -102,12 +104,187 @@ def cmd_solve(args):
     return 0 if res.converged else 1
 
 
+FOLLOW_KEYS = {
+    "param": str, "step": float, "max_points": int, "targets": list, "bounds": dict,
+    "stop_at_last_target": bool, "tol": float, "tail_tol": float, "min_step": float,
+    "max_step": float, "max_corrector": int, "event_tol": float, "events": list, "regrid": bool,
+    "n_max": int, "n_min": int, "checkpoint_every": int, "linear_solver": str,
+}
+_FOLLOW_RUN_KEYS = ("param", "step", "max_points", "targets", "bounds", "stop_at_last_target")
+
+
+def parse_follow_section(cfg, path):
+    """Validated ``[follow]`` table -> (run kwargs, ContinuationOptions kwargs)."""
+    import math
+
+    sec = check_section(cfg, "follow", FOLLOW_KEYS, path=path, required=("param",))
+    run = {k: sec[k] for k in _FOLLOW_RUN_KEYS if k in sec}
+    opts = {k: v for k, v in sec.items() if k not in _FOLLOW_RUN_KEYS}
+    if "events" in opts:
+        opts["events"] = tuple(opts["events"])
+    for t in run.get("targets", []):
+        if isinstance(t, bool) or not isinstance(t, (int, float)):
+            raise ConfigError(f"{path}: `follow.targets` must be numbers, got {t!r}")
+    bounds = {}
+    for k, v in run.get("bounds", {}).items():
+        if not (isinstance(v, list) and len(v) == 2 and all(isinstance(x, (int, float)) for x in v)):
+            raise ConfigError(f"{path}: `follow.bounds.{k}` must be [lo, hi] (use -inf/inf for open sides)")
+        bounds[k] = tuple(None if math.isinf(x) else float(x) for x in v)
+    run["bounds"] = bounds
+    return run, opts
+
+
+class Progress:
+    """Live progress: one rewritten line on a terminal, plain log lines otherwise."""
+
+    def __init__(self, stream=None):
+        self.stream = stream or sys.stderr
+        self.tty = hasattr(self.stream, "isatty") and self.stream.isatty()
+
+    def __call__(self, info):
+        n = "x".join(str(k) for k in info["n"])
+        step = info["step"] if info["step"] is not None else 0.0
+        text = (f"points {info['points']:4d}  {info['param']} = {info['value']:.10g}  step {step:.2e}  "
+                f"newton {info['iterations'] or 0:2d}  n {n}  events {info['events']}  [{info['kind']}]")
+        if self.tty:
+            self.stream.write("\r" + text.ljust(100))
+            self.stream.flush()
+        else:
+            print(text, file=self.stream, flush=True)
+
+    def close(self):
+        if self.tty:
+            self.stream.write("\n")
+            self.stream.flush()
+
+
+def print_branch_summary(branch, file=None):
+    out = file or sys.stdout
+    v = branch.values
+    print(f"{'finished' if branch.success else 'STOPPED'}: {branch.message}", file=out)
+    if len(v):
+        print(f"  {len(v)} points, {branch.param} in [{v.min():.10g}, {v.max():.10g}], "
+              f"{branch.nit} corrector iterations, {branch.wall_time:.2f} s", file=out)
+    for e in branch.events:
+        print(f"  {e.kind:6s} at {branch.param} = {e.value:.14g} (point {e.index})", file=out)
+
+
 def cmd_follow(args):
-    raise ConfigError("`follow` needs the continuation module")
+    from ..continuation import ContinuationOptions, follow
+    from ..family import write_atomic
+
+    path = args.config
+    cfg, text = load_config(path)
+    if "background" in cfg:
+        from ..backgrounds._config import follow_background_config
+
+        return follow_background_config(cfg, text, args)
+    check_top_level(cfg, ENGINE_SECTIONS, path)
+    run, opt_kw = parse_follow_section(cfg, path)
+    problem, params, guess, extras = _build_engine(cfg, path)
+    target = _output_path(args, cfg, path, "_family.nc")
+    progress = Progress()
+    try:
+        branch = follow(problem, guess, run.pop("param"), params=params,
+                        observables=extras.get("observables"), callback=progress,
+                        checkpoint=target, resume=target if args.resume else None,
+                        attrs={"config": text}, options=ContinuationOptions(**opt_kw), **run)
+    finally:
+        progress.close()
+    print_branch_summary(branch)
+    if branch.points:
+        write_atomic(branch.to_dataset(), target)
+        print(f"  wrote {target}")
+    if branch.status == 5:
+        return 130
+    return 0 if branch.success else 1
 
 
 def cmd_show(args):
-    raise ConfigError("`show` needs the family module")
+    from ..family import open_family
+
+    ds = open_family(args.file)
+    if "schema" not in ds.attrs:
+        return _show_solution(ds, args)
+    from ..family import validate_family
+
+    validate_family(ds)
+    param = ds.attrs["parameter"]
+    vals = ds[param].values
+    fields = ds.attrs["fields"].split(",")
+    ok = bool(ds.attrs.get("success", 0))
+    print(f"family of {ds.attrs.get('problem', '?')} in {param}: {ds.sizes['point']} points, "
+          f"{param} in [{vals.min():.10g}, {vals.max():.10g}]")
+    print(f"  stop: {ds.attrs.get('message', '?')}")
+    for i in range(ds.sizes.get("event", 0)):
+        print(f"  {str(ds.event_kind.values[i]):6s} at {param} = {ds.event_value.values[i]:.14g} "
+              f"(point {int(ds.event_point.values[i])})")
+    for k in ds.data_vars:
+        if k.startswith("n_") and ds[k].dims == ("point",):
+            n = ds[k].values
+            print(f"  resolution along {k[2:]}: n from {n.min()} to {n.max()}")
+    tails = np.nanmax(np.stack([ds[f"tail_{f}"].values for f in fields]), axis=0)
+    res = ds["residual"].values
+    wt, wr = int(np.nanargmax(tails)), int(np.nanargmax(res))
+    tol, tail_tol = ds.attrs.get("tol", np.nan), ds.attrs.get("tail_tol", np.nan)
+    print(f"  worst tail {tails[wt]:.2e} at point {wt} ({param} = {vals[wt]:.8g}); tolerance {tail_tol:.1e}")
+    print(f"  worst residual {res[wr]:.2e} at point {wr} ({param} = {vals[wr]:.8g}); tolerance {tol:.1e}")
+    certified = bool(np.all(tails <= tail_tol) and np.all(res <= tol))
+    extra = [k for k in ds.data_vars if ds[k].attrs.get("observable") == 1]
+    if extra:
+        print(f"  observables: {', '.join(extra)}")
+    for k in ds.data_vars:
+        if k.startswith("cert_"):
+            worst = np.nanmax(np.abs(ds[k].values))
+            print(f"  worst {k[5:]} {worst:.2e}")
+    print(f"  certificate: {'all points pass' if certified else 'FAILED at some points'}")
+    if args.plot is not None:
+        png = _plot_family(ds, param, extra, args)
+        print(f"  wrote {png}")
+    return 0 if (ok and certified) else 1
 
 
-__all__ = ["cmd_solve", "cmd_follow", "cmd_show", "print_solution_summary"]
+def _show_solution(ds, args):
+    print(f"solution: {ds.attrs.get('title', '?')}")
+    print(f"  {ds.attrs.get('message', '')}")
+    print(f"  iterations {ds.attrs.get('iterations')}, residual {ds.attrs.get('residual', np.nan):.2e}")
+    for k in ds.data_vars:
+        print(f"  tail[{k}] = {ds[k].attrs.get('spectral_tail', np.nan):.2e}")
+    return 0 if ds.attrs.get("converged", 0) == 1 else 1
+
+
+def _plot_family(ds, param, observables, args):
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    names = [args.observable] if args.observable else [o for o in observables if ds[o].ndim == 1][:2]
+    if not names:
+        raise ConfigError("the family has no scalar observable to plot; pass --observable NAME")
+    for n in names:
+        if n not in ds:
+            raise ConfigError(f"no observable {n!r} in {args.file} (have {', '.join(observables)})")
+    fig, axes = plt.subplots(len(names), 1, figsize=(6.4, 3.2 * len(names)), squeeze=False)
+    x = ds[param].values
+    for ax, n in zip(axes[:, 0], names):
+        ax.plot(x, ds[n].values, "-", lw=1.2, color="C0")
+        ax.plot(x, ds[n].values, ".", ms=3, color="C0")
+        for i in range(ds.sizes.get("event", 0)):
+            k = int(ds.event_point.values[i])
+            style = {"fold": ("C3", "o"), "branch": ("C2", "s")}.get(str(ds.event_kind.values[i]), ("k", "x"))
+            ax.plot(x[k], ds[n].values[k], style[1], color=style[0], ms=7,
+                    label=f"{ds.event_kind.values[i]} at {x[k]:.6g}")
+        ax.set_xlabel(ds[param].attrs.get("long_name", param))
+        ax.set_ylabel(ds[n].attrs.get("long_name", n))
+        if ds.sizes.get("event", 0):
+            ax.legend(fontsize=8)
+    fig.tight_layout()
+    png = args.plot or os.path.splitext(args.file)[0] + ".png"
+    fig.savefig(png, dpi=120)
+    plt.close(fig)
+    return png
+
+
+__all__ = ["cmd_solve", "cmd_follow", "cmd_show", "print_solution_summary", "print_branch_summary",
+           "Progress"]

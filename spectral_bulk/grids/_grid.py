@@ -176,23 +176,32 @@ class Grid:
         """Integral of nodal values (shape ``(..., size)``) over the grid."""
         return np.asarray(values) @ self.weights
 
+    def axis_tails(self, values, scale=1.0):
+        """Tail measure per field and axis, shape ``(nf, ndim)``.
+
+        For each axis the coefficients along that axis are taken on every grid
+        line; the worst line counts.  The size floor is
+        ``max(max|u_f|, scale_f)`` for the whole field.
+        """
+        v = np.asarray(values).reshape((-1,) + self.shape)
+        nf = v.shape[0]
+        scale = np.broadcast_to(np.asarray(scale, dtype=float), (nf,))
+        floor = np.maximum(np.abs(v).reshape(nf, -1).max(axis=1), scale)[:, None]
+        out = np.zeros((nf, self.ndim))
+        for k, b in enumerate(self.axes):
+            lines = np.moveaxis(v, k + 1, -1).reshape(nf, -1, b.n)
+            out[:, k] = b.tail(lines, floor).max(axis=1)
+        return out
+
     def tail(self, values, scale=1.0):
-        """Per-field tail measure: the worst over axes and over the other axes' points.
+        """Per-field tail measure: the worst over axes (see :meth:`axis_tails`).
 
         Parameters
         ----------
         values : ndarray, shape (nf, size)
         scale : float or ndarray, shape (nf,)
         """
-        v = np.asarray(values).reshape((-1,) + self.shape)
-        nf = v.shape[0]
-        scale = np.broadcast_to(np.asarray(scale, dtype=float), (nf,))
-        floor = np.maximum(np.abs(v).reshape(nf, -1).max(axis=1), scale)[:, None]
-        worst = np.zeros(nf)
-        for k, b in enumerate(self.axes):
-            lines = np.moveaxis(v, k + 1, -1).reshape(nf, -1, b.n)
-            worst = np.maximum(worst, b.tail(lines, floor).max(axis=1))
-        return worst
+        return self.axis_tails(values, scale).max(axis=1)
 
     def interp_matrices(self, *points):
         """Per-axis interpolation matrices for pointwise evaluation at ``points``."""

@@ -101,11 +101,17 @@ class DenseSolver:
         ``b`` shape (n,) or (n, m), ``c`` likewise, ``d`` scalar or (m, m).
     matrix : ndarray, optional
         A pre-assembled (unbordered) Jacobian to use instead of ``A``.
+    check : bool
+        Raise :class:`SingularJacobianError` from :meth:`solve` when the
+        reciprocal condition estimate is below ``RCOND_MIN``; ``False`` solves
+        anyway (used when locating singular points, where the right-hand side
+        is consistent).
     """
 
     kind = "dense"
 
-    def __init__(self, problem, A, border=None, matrix=None):
+    def __init__(self, problem, A, border=None, matrix=None, check=True):
+        self.check = check
         J = assemble_dense(problem, A) if matrix is None else matrix
         self.matrix = _bordered_dense(J, border)
         anorm = np.abs(self.matrix).sum(axis=0).max()
@@ -121,7 +127,7 @@ class DenseSolver:
         self.iterations = 0
 
     def solve(self, rhs):
-        if not self.rcond > RCOND_MIN:
+        if self.check and not self.rcond > RCOND_MIN:
             raise SingularJacobianError(
                 f"singular Jacobian (reciprocal condition estimate {self.rcond:.1e})"
             )
@@ -150,8 +156,8 @@ class KrylovSolver:
 
     kind = "gmres"
 
-    def __init__(self, problem, A, border=None, rtol=1e-12, restart=60, maxiter=20):
-        self.problem, self.A, self.rtol = problem, A, float(rtol)
+    def __init__(self, problem, A, border=None, rtol=1e-12, restart=60, maxiter=20, check=True):
+        self.problem, self.A, self.rtol, self.check = problem, A, float(rtol), check
         self.restart, self.maxiter = int(restart), int(maxiter)
         self.border = border
         n = problem.size
@@ -182,7 +188,7 @@ class KrylovSolver:
 
     def _dense_solver(self):
         if self._dense is None:
-            self._dense = DenseSolver(self.problem, self.A, self.border)
+            self._dense = DenseSolver(self.problem, self.A, self.border, check=self.check)
             self.rcond = self._dense.rcond
         return self._dense
 
@@ -212,12 +218,12 @@ class KrylovSolver:
         return self._dense_solver().slogdet()
 
 
-def make_solver(problem, A, kind="auto", border=None, rtol=1e-12):
+def make_solver(problem, A, kind="auto", border=None, rtol=1e-12, check=True):
     """Factorise the Jacobian with the solver ``kind`` ("dense", "gmres" or "auto")."""
     if kind == "auto":
         kind = "dense" if problem.grid.ndim == 1 or problem.size <= 800 else "gmres"
     if kind == "dense":
-        return DenseSolver(problem, A, border)
+        return DenseSolver(problem, A, border, check=check)
     if kind == "gmres":
-        return KrylovSolver(problem, A, border, rtol=rtol)
+        return KrylovSolver(problem, A, border, rtol=rtol, check=check)
     raise ValueError(f"`linear_solver` must be 'auto', 'dense' or 'gmres', got {kind!r}")
