@@ -235,7 +235,13 @@ class Chebyshev(Basis):
 
     @property
     def weights(self):
-        """Clenshaw-Curtis weights times ``dx/dxi``; zero at an infinite end."""
+        """Clenshaw-Curtis weights times ``dx/dxi``; zero at an infinite end.
+
+        On a half line the integrand must decay faster than ``1/x**2``: for
+        ``c/x**2`` decay the mapped integrand is finite at infinity and its end
+        contribution, which the nodal value ``f(inf) = 0`` cannot supply, is
+        dropped (an ``O(n**-2)`` error).
+        """
         w = clenshaw_curtis_weights(self.n) * np.where(
             np.isfinite(self._dx_dxi), self._dx_dxi, 0.0
         )

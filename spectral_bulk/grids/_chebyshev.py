@@ -191,7 +191,7 @@ def bary_matrix(nodes, weights, points):
     """
     y = np.atleast_1d(np.asarray(points, dtype=float)).ravel()
     diff = y[:, None] - nodes[None, :]
-    exact = diff == 0
+    exact = np.abs(diff) < 1e-300  # also subnormal distances, where weight/diff overflows
     with np.errstate(divide="ignore", invalid="ignore"):
         t = weights[None, :] / diff
         p = t / t.sum(axis=1, keepdims=True)

@@ -70,12 +70,12 @@ def _basis_matrix(theta, n, parity, deriv=0):
     """Values of ``d^deriv/dtheta^deriv`` of the real basis functions at ``theta``."""
     theta = np.asarray(theta, dtype=float)[:, None]
     m = fourier_wavenumbers(n, parity)[None, :]
-    if parity == "even":
-        phase = [np.cos, lambda a: -np.sin(a), lambda a: -np.cos(a)][deriv]
-        return m**deriv * phase(m * theta)
-    if parity == "odd":
-        phase = [np.sin, np.cos, lambda a: -np.sin(a)][deriv]
-        return m**deriv * phase(m * theta)
+    # derivatives cycle with period four: cos -> -sin -> -cos -> sin, sin -> cos -> -sin -> -cos
+    cycle = {"even": ((1, np.cos), (-1, np.sin), (-1, np.cos), (1, np.sin)),
+             "odd": ((1, np.sin), (1, np.cos), (-1, np.sin), (-1, np.cos))}
+    if parity in cycle:
+        sign, fn = cycle[parity][deriv % 4]
+        return sign * m**deriv * fn(m * theta)
     raise AssertionError("full parity uses the FFT route")
 
 

@@ -11,7 +11,6 @@ this guess.  Norms are the scaled update norm defined in :class:`NewtonOptions`.
 """
 
 import dataclasses
-import functools
 import time
 
 import numpy as np
@@ -113,20 +112,10 @@ def scaled_norm(problem, dx, u):
     return float((d / w).max())
 
 
-def _row_sums(problem):
-    """Absolute row sums of every derivative operator, shape ``(nalpha, npoints)``."""
-    out = []
-    for alpha in problem.alphas:
-        parts = [np.ones(b.n) if o == 0 else np.abs(b.diff_matrices(o)[o - 1]).sum(axis=1)
-                 for b, o in zip(problem.grid.axes, alpha)]
-        out.append(functools.reduce(np.multiply.outer, parts).ravel())
-    return np.stack(out)
-
-
 def residual_norm(problem, F, A, u):
     """Componentwise backward error of the residual (see :class:`NewtonOptions`)."""
     w = np.maximum(np.abs(problem.split(u)).max(axis=1), problem.scales)
-    R = _row_sums(problem)  # (na, npts)
+    R = problem.row_sums()  # (na, npts)
     scale = np.einsum("jikp,i,kp->jp", np.abs(A), w, R)
     F = problem.split(F)
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -246,8 +235,7 @@ def solve(problem, guess, *, params=None, tol=None, max_iter=None, damping=None,
     t0 = time.perf_counter()
     params = problem.merged_params(params)
     u = initial_state(problem, guess)
-    problem.check(u, params)
-    res = _newton(problem, u, params, opts)
+    res = _newton(problem, u, params, opts, first_is_input=True)
     res.wall_time = time.perf_counter() - t0
     if not res.converged:
         if raise_on_failure:
@@ -259,65 +247,71 @@ def solve(problem, guess, *, params=None, tol=None, max_iter=None, damping=None,
 solve.__doc__ = solve.__doc__.replace("{status_docs}", _status_docs().replace("\n", "\n    "))
 
 
-def _newton(problem, u, params, opts):
+def _newton(problem, u, params, opts, first_is_input=False):
     tol = opts.tol
     info = dict(nfev=0, njev=0, residual_norms=[], update_norms=[], damping=[], tol=tol)
     fmt = dict(tol=tol, max_iter=opts.max_iter, lambda_min=opts.lambda_min, tail_tol=opts.tail_tol,
                update=np.nan, residual=np.nan, tail=np.nan, rcond=np.nan, where="", fields="",
                why="")
+    # In 1-D the trial point is linearised right away (its real part is the residual
+    # the monotonicity test needs); when the step is accepted, as it is near the
+    # solution, that linearisation serves the next iteration.
+    reuse = problem.grid.ndim == 1
 
-    def finish(status, state, A=None, F=None, rcond=np.nan, solver=None):
+    def finish(status, state, A=None, F=None, solver=None):
         tails = problem.grid.tail(problem.split(state), problem.scales)
         tail = dict(zip(problem.fields, map(float, tails)))
         if F is None:
             F = problem.residual(state, params)
             info["nfev"] += 1
-        if A is not None and np.all(np.isfinite(F)):
-            r = residual_norm(problem, F, A, state)
-        else:
-            r = float(np.nan)
+        r = residual_norm(problem, F, A, state) if A is not None and np.all(np.isfinite(F)) else np.nan
         if status == 0:
-            if r > tol:
+            if not r <= tol:
                 status = 6
             elif max(tails) > opts.tail_tol:
                 status = 5
                 fmt["fields"] = ", ".join(f for f, t in tail.items() if t > opts.tail_tol)
+        rcond = solver.rcond if solver is not None else np.nan
         fmt.update(residual=r, tail=float(max(tails)), rcond=rcond,
                    update=info["update_norms"][-1] if info["update_norms"] else np.nan)
         return SolveResult(problem, state, params, status=status, message=MESSAGES[status].format(**fmt),
-                           iterations=info["njev"], residual=r,
-                           update=fmt["update"], tail=tail, condition=rcond,
-                           linear_solver=getattr(solver, "kind", None), **info)
+                           iterations=info["njev"], residual=r, update=fmt["update"], tail=tail,
+                           condition=rcond, linear_solver=getattr(solver, "kind", None), **info)
 
     lam = opts.lambda_init
     prev = None  # (norm dx, dxbar, lam) of the previous iteration
-    A = rcond = solver = None
+    solver = None
+    pending = None  # linearisation of the accepted trial point, if any
     for _ in range(opts.max_iter):
-        F, A = problem.linearize(u, params)
-        info["nfev"] += 1
+        if pending is not None:
+            F, A = pending
+            pending = None
+        else:
+            F, A = problem.linearize(u, params)
+            info["nfev"] += 1
         info["njev"] += 1
-        if not np.all(np.isfinite(F)) or not np.all(np.isfinite(A)):
+        if not (np.all(np.isfinite(F)) and np.all(np.isfinite(A))):
+            if first_is_input and info["njev"] == 1:
+                problem.check(u, params)  # raises, naming the equations that are not finite
             fmt["where"] = "in the residual or its linearisation at iteration " + str(info["njev"])
             return finish(3, u, F=F)
         info["residual_norms"].append(residual_norm(problem, F, A, u))
         try:
             solver = make_solver(problem, A, opts.linear_solver, rtol=opts.linear_rtol)
-            rcond = solver.rcond
             dx = -solver.solve(F)
         except SingularJacobianError:
-            return finish(2, u, A=A, F=F, rcond=getattr(solver, "rcond", 0.0), solver=solver)
+            return finish(2, u, A=A, F=F, solver=solver)
         except (ValueError, RuntimeError) as exc:  # pragma: no cover - defensive
             fmt["why"] = str(exc)
-            return finish(7, u, A=A, F=F, solver=solver)
+            return finish(7, u, A=A, F=F)
         if not np.all(np.isfinite(dx)):
             fmt["why"] = "non-finite Newton update"
-            return finish(7, u, A=A, F=F, solver=solver)
+            return finish(7, u, A=A, F=F)
         ndx = scaled_norm(problem, dx, u)
         info["update_norms"].append(ndx)
         if ndx <= tol:
-            u = u + dx
             info["damping"].append(1.0)
-            return finish(0, u, A=A, rcond=rcond, solver=solver)
+            return finish(0, u + dx, A=A, solver=solver)
         if opts.damping and prev is not None:
             ndx_prev, dxbar_prev, lam_prev = prev
             denom = scaled_norm(problem, dxbar_prev - dx, u) * ndx
@@ -326,9 +320,12 @@ def _newton(problem, u, params, opts):
         while True:
             if lam < opts.lambda_min:
                 fmt["update"] = ndx
-                return finish(4, u, A=A, F=F, rcond=rcond, solver=solver)
+                return finish(4, u, A=A, F=F, solver=solver)
             trial = u + lam * dx
-            Ft = problem.residual(trial, params)
+            if reuse and opts.damping:
+                Ft, At = problem.linearize(trial, params)
+            else:
+                Ft, At = problem.residual(trial, params), None
             info["nfev"] += 1
             if not np.all(np.isfinite(Ft)):
                 if not opts.damping:
@@ -339,10 +336,7 @@ def _newton(problem, u, params, opts):
             if not opts.damping:
                 dxbar = None
                 break
-            try:
-                dxbar = -solver.solve(Ft)
-            except SingularJacobianError:  # pragma: no cover - same matrix as above
-                return finish(2, u, A=A, F=F, rcond=rcond, solver=solver)
+            dxbar = -solver.solve(Ft)
             theta = scaled_norm(problem, dxbar, u) / ndx
             dd = scaled_norm(problem, dxbar - (1 - lam) * dx, u)
             mu_p = 0.5 * ndx * lam**2 / dd if dd > 0 else np.inf
@@ -356,13 +350,17 @@ def _newton(problem, u, params, opts):
             break
         info["damping"].append(lam)
         u = trial
+        if At is not None and np.all(np.isfinite(At)):
+            pending = (Ft, At)
         if dxbar is not None and lam == 1.0 and scaled_norm(problem, dxbar, u) <= tol:
-            u = u + dxbar  # simplified-Newton correction already below tolerance
+            # the simplified-Newton correction is already below tolerance
             info["update_norms"].append(scaled_norm(problem, dxbar, u))
-            return finish(0, u, A=A, rcond=rcond, solver=solver)
+            if pending is not None:
+                return finish(0, u + dxbar, A=pending[1], solver=solver)
+            return finish(0, u + dxbar, A=A, solver=solver)
         prev = (ndx, dxbar, lam) if dxbar is not None else None
     fmt["update"] = info["update_norms"][-1]
-    return finish(1, u, A=A, rcond=rcond, solver=solver)
+    return finish(1, u, A=A, solver=solver)
 
 
 def check_jacobian(problem, state=None, params=None, *, guess=None, step=None):

@@ -207,32 +207,67 @@ class Problem:
         u = self.split(state)
         return {f: u[i].reshape(self.grid.shape) for i, f in enumerate(self.fields)}
 
+    def _plan(self):
+        """Per-grid constants of the evaluation, computed once (names, faces, operators)."""
+        if self._ops is None:
+            names = []
+            for i, f in enumerate(self.fields):
+                for k, a in enumerate(self.alphas):
+                    for suffix in self.grid.deriv_aliases(a):
+                        names.append((f + suffix, i, k))
+            faces = [(key, fun, self.grid.faces[face]) for face, (key, fun) in self.boundary.items()
+                     if fun is not None]
+            coords = Namespace(dict(self.grid.coords), "coordinate")
+            face_coords = [Namespace({n: c[idx] for n, c in self.grid.coords.items()}, "coordinate")
+                           for _, _, idx in faces]
+            dstack = None
+            if self.grid.ndim == 1:
+                d = self.grid.axes[0].diff_matrices(self.max_order)
+                n = self.grid.size
+                mats = [np.eye(n)] + [d[a[0] - 1] for a in self.alphas[1:]]
+                dstack = np.ascontiguousarray(np.concatenate([m.T for m in mats], axis=1))
+            self._ops = {"names": names, "faces": faces, "coords": coords,
+                         "face_coords": face_coords, "dstack": dstack}
+        return self._ops
+
     def derivatives(self, state):
         """All derivatives ``D^alpha U_i``; shape ``(nfields, nalpha, size)``."""
         u = self.split(state)
+        plan = self._plan()
+        if plan["dstack"] is not None:
+            return (u @ plan["dstack"]).reshape(self.nfields, len(self.alphas), self.grid.size)
         return np.stack([self.grid.apply(a, u) if any(a) else u for a in self.alphas], axis=1)
 
-    def _field_names(self, i):
-        return [self.fields[i] + self.grid.deriv_suffix(a) for a in self.alphas]
+    def _dense_ops(self):
+        """Stack of dense derivative operators ``(nalpha, size, size)`` (cached per grid)."""
+        plan = self._plan()
+        if "dense" not in plan:
+            plan["dense"] = np.stack([self.grid.dense_operator(a) for a in self.alphas])
+        return plan["dense"]
+
+    def row_sums(self):
+        """Absolute row sums of each derivative operator, ``(nalpha, size)`` (cached)."""
+        plan = self._plan()
+        if "rowsums" not in plan:
+            out = []
+            for alpha in self.alphas:
+                parts = [np.ones(b.n) if o == 0 else np.abs(b.diff_matrices(o)[o - 1]).sum(axis=1)
+                         for b, o in zip(self.grid.axes, alpha)]
+                r = parts[0]
+                for q in parts[1:]:
+                    r = np.multiply.outer(r, q)
+                out.append(np.ravel(r))
+            plan["rowsums"] = np.stack(out)
+        return plan["rowsums"]
 
     def _namespace(self, values):
         """Field namespace from values shaped ``(nfields, nalpha, ...)``."""
-        data = {}
-        for i, f in enumerate(self.fields):
-            for k, a in enumerate(self.alphas):
-                for suffix in self.grid.deriv_aliases(a):
-                    data[f + suffix] = values[i, k]
-        return Namespace(data, "field or derivative")
-
-    def _coords(self, idx=None):
-        data = {n: (c if idx is None else c[idx]) for n, c in self.grid.coords.items()}
-        return Namespace(data, "coordinate")
+        return Namespace({name: values[i, k] for name, i, k in self._plan()["names"]},
+                         "field or derivative")
 
     # ----------------------------------------------------------- evaluations
     def _call(self, fun, c, fvals, params, what, npts):
-        f = self._namespace(fvals)
-        p = Namespace(params, "parameter")
-        out = fun(c, f, p)
+        out = fun(c, self._namespace(fvals), params)
         return self._normalise(out, what, npts, fvals.shape[2:-1])
 
     def _normalise(self, out, what, npts, batch):
@@ -256,49 +291,39 @@ class Problem:
             if r is None:
                 res.append(None)
                 continue
-            r = np.asarray(r)
-            try:
-                r = np.broadcast_to(r, target)
-            except ValueError:
-                raise ProblemDefinitionError(
-                    f"{what}: entry for field {f!r} has shape {r.shape}, "
-                    f"expected {(npts,)} (one value per point)"
-                ) from None
+            if getattr(r, "shape", None) != target:
+                r = np.asarray(r)
+                try:
+                    r = np.broadcast_to(r, target)
+                except ValueError:
+                    raise ProblemDefinitionError(
+                        f"{what}: entry for field {f!r} has shape {r.shape}, "
+                        f"expected {(npts,)} (one value per point)"
+                    ) from None
             res.append(r)
         return res
 
-    def _operators(self):
-        if self._ops is None:
-            faces = []
-            for face, (key, fun) in self.boundary.items():
-                faces.append((face, key, fun, self.grid.faces[face]))
-            self._ops = faces
-        return self._ops
-
     def _evaluate(self, dvals, params, complex_step=None):
-        """Residual rows (and optionally batched complex-step rows).
+        """Residual rows (boundary rows replaced); shape ``(nfields, [batch,] size)``.
 
         ``dvals`` has shape ``(nfields, nalpha, [batch,] size)``.
         """
         npts = self.grid.size
-        c = self._coords()
-        eq = self._call(self.equations, c, dvals, params, f"equations {self.name!r}", npts)
+        plan = self._plan()
+        p = Namespace(params, "parameter")
+        eq = self._call(self.equations, plan["coords"], dvals, p, f"equations {self.name!r}", npts)
         for i, e in enumerate(eq):
             if e is None:
                 raise ProblemDefinitionError(
                     f"equations returned None for field {self.fields[i]!r}; "
                     "None is only meaningful in boundary conditions"
                 )
-        rows = np.array(np.stack(eq, axis=0), dtype=complex if complex_step else float)
-        for face, key, fun, idx in self._operators():
-            if fun is None:
-                continue
-            sub = dvals[..., idx]
-            cb = self._coords(idx)
-            bc = self._call(fun, cb, sub, params, f"boundary condition {key!r}", len(idx))
+        rows = np.array(eq, dtype=complex if complex_step else float)
+        for (key, fun, idx), cb in zip(plan["faces"], plan["face_coords"]):
+            bc = self._call(fun, cb, dvals[..., idx], p, f"boundary condition {key!r}", len(idx))
             for i, b in enumerate(bc):
                 if b is not None:
-                    rows[i, ..., idx] = b
+                    rows[i][..., idx] = b
         return rows
 
     def residual(self, state, params=None):
@@ -326,14 +351,18 @@ class Problem:
         with np.errstate(all="ignore"):
             if self._batched:
                 try:
-                    pert = np.zeros((nf, na, nslot, npts), dtype=complex)
-                    pert += dv[:, :, None, :]
-                    s = np.arange(nslot)
-                    pert[s // na, s % na, s, :] += 1j * _H
+                    plan = self._plan()
+                    if "perturb" not in plan:
+                        t = np.zeros((nf, na, nslot, 1), dtype=complex)
+                        s = np.arange(nslot)
+                        t[s // na, s % na, s, 0] = 1j * _H
+                        plan["perturb"] = t
+                    pert = dv[:, :, None, :] + plan["perturb"]
                     rows = self._evaluate(pert, params, complex_step=True)
                 except ProblemDefinitionError:
                     raise
-                except Exception:  # the callbacks do not broadcast over a batch axis
+                except (ValueError, TypeError, IndexError):
+                    # the callbacks do not broadcast over a batch axis: evaluate slot by slot
                     self._batched = False
             if not self._batched:
                 rows = np.empty((nf, nslot, npts), dtype=complex)
