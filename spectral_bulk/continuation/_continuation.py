@@ -217,6 +217,8 @@ class Branch:
         self.wall_time = 0.0
         self.attrs = dict(attrs or {})
         self.fixed_params = {}
+        #: optional ``callable(dataset) -> dataset`` applied by :meth:`to_dataset`
+        self.postprocess = None
 
     @property
     def success(self):
@@ -262,7 +264,8 @@ class Branch:
         for k, v in self.fixed_params.items():
             attrs[f"param_{k}"] = float(np.real(v))
         attrs.update(self.attrs)
-        return build_family_dataset(self.param, self.problem.fields, recs, events, attrs)
+        ds = build_family_dataset(self.param, self.problem.fields, recs, events, attrs)
+        return self.postprocess(ds) if self.postprocess is not None else ds
 
     def __repr__(self):
         v = self.values

@@ -1,0 +1,323 @@
+"""Pointwise curvature of a metric that depends on one coordinate.
+
+The metric components are given as truncated series (:class:`Series`) in the
+offset of the radial coordinate from the evaluation point, with the batch of
+points (and complex-step perturbations) carried in the coefficients; constants
+(numbers or arrays) are allowed and zero components are simply omitted.  All
+tensors are sparse dicts keyed by index tuples, so a diagonal metric costs a
+fraction of the dense formulas.
+
+Formulas (common practice; e.g. "General Relativity", University of Chicago
+Press (1984), chapter 3):
+
+    Gamma_{s m n} = (d_m g_{s n} + d_n g_{s m} - d_s g_{m n}) / 2
+    Gamma^l_{m n} = g^{l s} Gamma_{s m n}
+    R_{m n} = d_l Gamma^l_{m n} - d_n Gamma^l_{m l}
+              + Gamma^l_{l s} Gamma^s_{m n} - Gamma^l_{n s} Gamma^s_{m l}
+    xi^m = g^{a b} (Gamma^m_{a b} - Gammabar^m_{a b})            (DeTurck vector)
+    (nabla xi)_{(m n)} = (d_m xi_n + d_n xi_m)/2 - Gamma^l_{m n} xi_l
+
+Only the radial derivative is non-zero for metric components; scalar fields may
+in addition depend linearly on other coordinates (a Q-lattice phase ``k x``,
+axions ``alpha x``) through explicit constant gradients.
+"""
+
+import itertools
+
+import numpy as np
+
+from ._series import Series
+
+__all__ = ["Geometry", "ScalarField", "tensor_sum"]
+
+
+def _is_zero(x):
+    return x is None or (not isinstance(x, Series) and np.ndim(x) == 0 and x == 0)
+
+
+def tensor_sum(terms):
+    """Sum of terms skipping exact zeros (returns 0 for an empty sum)."""
+    out = 0
+    for t in terms:
+        if _is_zero(t):
+            continue
+        out = t if _is_zero(out) else out + t
+    return out
+
+
+def _mul(a, b):
+    if _is_zero(a) or _is_zero(b):
+        return 0
+    return a * b
+
+
+def _deriv(x):
+    if isinstance(x, Series):
+        return x.derivative()
+    return 0
+
+
+class ScalarField:
+    """A scalar field: its value (a series in the radial offset) and extra gradients.
+
+    Parameters
+    ----------
+    value : Series or array
+        Radial profile (its series gives the radial derivatives).
+    gradient : dict of int -> float or array, optional
+        Constant derivatives along other coordinates (e.g. ``{2: k}`` for a
+        phase ``k x`` with ``x`` the coordinate of index 2).
+    """
+
+    def __init__(self, value, gradient=None):
+        self.value = value
+        self.extra = dict(gradient or {})
+
+    def grad(self, mu, radial):
+        if mu == radial:
+            return _deriv(self.value)
+        return self.extra.get(mu, 0)
+
+    def hess(self, mu, nu, radial):
+        if mu == radial and nu == radial:
+            return _deriv(_deriv(self.value))
+        return 0
+
+
+class Geometry:
+    """Christoffel symbols, Ricci tensor and DeTurck terms of a radial metric.
+
+    Parameters
+    ----------
+    metric : dict of (int, int) -> Series or array
+        Components ``g_{mu nu}`` with ``mu <= nu`` (the lower triangle is filled
+        by symmetry); absent components are zero.
+    dim : int
+        Spacetime dimension ``D``.
+    radial : int
+        Index of the coordinate the components depend on.
+    """
+
+    def __init__(self, metric, dim, radial):
+        self.dim, self.radial = int(dim), int(radial)
+        self.g = {}
+        for (m, n), v in metric.items():
+            if _is_zero(v):
+                continue
+            self.g[(m, n)] = v
+            self.g[(n, m)] = v
+        self._inv = self._gamma = self._ricci = None
+
+    # ----------------------------------------------------------------- pieces
+    def comp(self, m, n):
+        return self.g.get((m, n), 0)
+
+    @property
+    def inverse(self):
+        """``g^{mu nu}`` as a dict (block-wise inversion of the sparsity pattern)."""
+        if self._inv is None:
+            self._inv = _block_inverse(self.g, self.dim)
+        return self._inv
+
+    def inv(self, m, n):
+        return self.inverse.get((m, n), 0)
+
+    @property
+    def dg(self):
+        """Radial derivatives of the metric components."""
+        if not hasattr(self, "_dg"):
+            self._dg = {k: _deriv(v) for k, v in self.g.items()}
+        return self._dg
+
+    def _d(self, mu, key):
+        return self.dg.get(key, 0) if mu == self.radial else 0
+
+    @property
+    def christoffel(self):
+        """``Gamma^l_{m n}`` for ``m <= n`` (dict; zeros omitted)."""
+        if self._gamma is None:
+            D = self.dim
+            first = {}
+            for s, m, n in itertools.product(range(D), repeat=3):
+                if m > n:
+                    continue
+                val = tensor_sum([self._d(m, (s, n)), self._d(n, (s, m)), -1 * self._d(s, (m, n))
+                                  if not _is_zero(self._d(s, (m, n))) else 0])
+                if not _is_zero(val):
+                    first[(s, m, n)] = 0.5 * val
+            gam = {}
+            for l, m, n in itertools.product(range(D), repeat=3):
+                if m > n:
+                    continue
+                val = tensor_sum(_mul(self.inv(l, s), first.get((s, m, n), 0)) for s in range(D))
+                if not _is_zero(val):
+                    gam[(l, m, n)] = val
+            self._gamma = gam
+        return self._gamma
+
+    def gamma(self, l, m, n):
+        return self.christoffel.get((l, m, n) if m <= n else (l, n, m), 0)
+
+    @property
+    def ricci(self):
+        """``R_{mu nu}`` for ``mu <= nu`` (dict)."""
+        if self._ricci is None:
+            D, r = self.dim, self.radial
+            trace = {s: tensor_sum(self.gamma(l, l, s) for l in range(D)) for s in range(D)}
+            ric = {}
+            for m, n in itertools.combinations_with_replacement(range(D), 2):
+                terms = [_deriv(self.gamma(r, m, n))]
+                if n == r and not _is_zero(trace[m]):
+                    terms.append(-1 * _deriv(trace[m]))
+                terms += [_mul(trace[s], self.gamma(s, m, n)) for s in range(D)]
+                for l, s in itertools.product(range(D), repeat=2):
+                    t = _mul(self.gamma(l, n, s), self.gamma(s, m, l))
+                    if not _is_zero(t):
+                        terms.append(-1 * t)
+                val = tensor_sum(terms)
+                if not _is_zero(val):
+                    ric[(m, n)] = val
+            self._ricci = ric
+        return self._ricci
+
+    def deturck(self, reference):
+        """DeTurck vector ``xi^mu`` and ``nabla_(mu xi_nu)`` against a reference geometry.
+
+        Returns
+        -------
+        xi_up : dict mu -> series
+        sym : dict (mu, nu) -> series, ``mu <= nu``
+        """
+        D, r = self.dim, self.radial
+        xi_up = {}
+        for m in range(D):
+            terms = []
+            for a, b in itertools.product(range(D), repeat=2):
+                gab = self.inv(a, b)
+                if _is_zero(gab):
+                    continue
+                diff = tensor_sum([self.gamma(m, a, b), -1 * reference.gamma(m, a, b)
+                                   if not _is_zero(reference.gamma(m, a, b)) else 0])
+                terms.append(_mul(gab, diff))
+            v = tensor_sum(terms)
+            if not _is_zero(v):
+                xi_up[m] = v
+        xi_dn = {m: tensor_sum(_mul(self.comp(m, n), xi_up.get(n, 0)) for n in range(D)) for m in range(D)}
+        xi_dn = {m: v for m, v in xi_dn.items() if not _is_zero(v)}
+        sym = {}
+        for m, n in itertools.combinations_with_replacement(range(D), 2):
+            terms = []
+            if m == r:
+                terms.append(0.5 * _deriv(xi_dn.get(n, 0)) if not _is_zero(_deriv(xi_dn.get(n, 0))) else 0)
+            if n == r:
+                terms.append(0.5 * _deriv(xi_dn.get(m, 0)) if not _is_zero(_deriv(xi_dn.get(m, 0))) else 0)
+            for l in range(D):
+                t = _mul(self.gamma(l, m, n), xi_dn.get(l, 0))
+                if not _is_zero(t):
+                    terms.append(-1 * t)
+            v = tensor_sum(terms)
+            if not _is_zero(v):
+                sym[(m, n)] = v
+        return xi_up, sym
+
+    def dot(self, va, vb):
+        """``g^{mu nu} a_mu b_nu`` for covectors given as dicts."""
+        return tensor_sum(_mul(self.inv(m, n), _mul(va.get(m, 0), vb.get(n, 0)))
+                          for m in range(self.dim) for n in range(self.dim))
+
+    def box(self, field):
+        """``g^{mu nu} (d_mu d_nu phi - Gamma^l_{mu nu} d_l phi)`` of a :class:`ScalarField`."""
+        D, r = self.dim, self.radial
+        terms = []
+        for m, n in itertools.product(range(D), repeat=2):
+            gmn = self.inv(m, n)
+            if _is_zero(gmn):
+                continue
+            inner = [field.hess(m, n, r)]
+            for l in range(D):
+                t = _mul(self.gamma(l, m, n), field.grad(l, r))
+                if not _is_zero(t):
+                    inner.append(-1 * t)
+            terms.append(_mul(gmn, tensor_sum(inner)))
+        return tensor_sum(terms)
+
+    def raise_first(self, tensor):
+        """Mixed components ``T^mu_nu = g^{mu a} T_{a nu}`` of a symmetric dict tensor."""
+        D = self.dim
+        full = {}
+        for (a, b), v in tensor.items():
+            full[(a, b)] = v
+            full[(b, a)] = v
+        out = {}
+        for m, n in itertools.product(range(D), repeat=2):
+            v = tensor_sum(_mul(self.inv(m, a), full.get((a, n), 0)) for a in range(D))
+            if not _is_zero(v):
+                out[(m, n)] = v
+        return out
+
+
+def _block_inverse(g, D):
+    # connected components of the sparsity pattern
+    seen, blocks = set(), []
+    for i in range(D):
+        if i in seen:
+            continue
+        stack, block = [i], []
+        while stack:
+            a = stack.pop()
+            if a in seen:
+                continue
+            seen.add(a)
+            block.append(a)
+            stack.extend(b for b in range(D) if (a, b) in g and b not in seen)
+        blocks.append(sorted(block))
+    inv = {}
+    for blk in blocks:
+        if len(blk) == 1:
+            a = blk[0]
+            if (a, a) not in g:
+                raise ZeroDivisionError(f"metric component g_{a}{a} vanishes identically")
+            inv[(a, a)] = 1 / g[(a, a)]
+        elif len(blk) == 2:
+            a, b = blk
+            ga, gb, gab = g.get((a, a), 0), g.get((b, b), 0), g.get((a, b), 0)
+            det = tensor_sum([_mul(ga, gb), -1 * _mul(gab, gab)])
+            idet = 1 / det
+            if not _is_zero(gb):
+                inv[(a, a)] = gb * idet
+            if not _is_zero(ga):
+                inv[(b, b)] = ga * idet
+            if not _is_zero(gab):
+                inv[(a, b)] = inv[(b, a)] = -1 * gab * idet
+        else:
+            inv.update(_gauss_jordan(g, blk))
+    return inv
+
+
+def _gauss_jordan(g, blk):
+    n = len(blk)
+    a = [[g.get((blk[i], blk[j]), 0) for j in range(n)] for i in range(n)]
+    e = [[1 if i == j else 0 for j in range(n)] for i in range(n)]
+    for col in range(n):
+        piv = next((r for r in range(col, n) if not _is_zero(a[r][col])), None)
+        if piv is None:
+            raise ZeroDivisionError("singular metric block")
+        a[col], a[piv] = a[piv], a[col]
+        e[col], e[piv] = e[piv], e[col]
+        ip = 1 / a[col][col]
+        a[col] = [_mul(x, ip) for x in a[col]]
+        e[col] = [_mul(x, ip) for x in e[col]]
+        for r in range(n):
+            if r == col or _is_zero(a[r][col]):
+                continue
+            fct = a[r][col]
+            a[r] = [tensor_sum([x, -1 * _mul(fct, y) if not _is_zero(_mul(fct, y)) else 0])
+                    for x, y in zip(a[r], a[col])]
+            e[r] = [tensor_sum([x, -1 * _mul(fct, y) if not _is_zero(_mul(fct, y)) else 0])
+                    for x, y in zip(e[r], e[col])]
+    out = {}
+    for i in range(n):
+        for j in range(n):
+            if not _is_zero(e[i][j]):
+                out[(blk[i], blk[j])] = e[i][j]
+    return out

@@ -1,0 +1,351 @@
+"""Holographic renormalisation and thermodynamics of static branes (d = 3).
+
+Formulas (derivations in ``docs/physics/black_branes.md``; counterterms
+``-int sqrt(-gamma) [4 + R[gamma] + rho^2/2]``, common practice, "Holographic
+renormalization", hep-th/0112119):
+
+For the metric ``z^-2 [-F dt^2 + G dz^2 + B dx^2 + C dy^2]`` with Taylor expansions
+``X = X0 (1 + X1 z + X2 z^2 + X3 z^3)``, ``G = 1 + G1 z + G2 z^2 + G3 z^3``, ``rho = r1 z + r2 z^2``::
+
+    s2 = G2/4 - G1^2/16,           s3 = G3/6 - G1 G2/12 + G1^3/48
+    l2 = X2 - X1^2/2,              l3 = X3 - X1 X2 + X1^3/3
+    g3^X = l3 + 2 s3 - G1 (l2 + 2 s2),     lambda = r1,   rho_2 = r2 - G1 r1/2
+    energy = -3 g3^F - lambda rho_2,  p_x = 3 g3^B + lambda rho_2,  p_y = 3 g3^C + lambda rho_2
+    <O> = rho_2 (Delta = 2);  alternative (Delta = 1): J = rho_2, <O> = -lambda and
+    T^i_j -> T^i_j - lambda rho_2 delta^i_j.
+
+The trace Ward identity ``-energy + p_x + p_y = sum_I (d - Delta_I) J_I <O_I>`` holds only
+on shell (it is ``3 sum g3 = -2 lambda rho_2``), so its residual certifies the numerical
+solution.  ``T`` and ``s`` come from the horizon; the free energy is computed twice: from
+``energy - T s - mu rho`` and from the renormalised Euclidean action (bulk integral in the
+areal coordinate plus boundary terms), and their difference is part of the certificate.
+"""
+
+import math
+
+import numpy as np
+
+from ..gravity import Series, coordinate_series
+
+__all__ = ["brane_observables", "taylor_at_boundary", "CERTIFICATE_KEYS"]
+
+#: Keys of the certificate part of the observables.
+CERTIFICATE_KEYS = ("residual", "tail", "ward_trace", "thermo", "py_f", "action", "deturck",
+                    "temperature")
+
+
+def taylor_at_boundary(solution, field, order=3, index=0):
+    """Taylor coefficients ``[X(0), X'(0), X''(0)/2, ...]`` of a field at a grid end.
+
+    The derivatives come from the Chebyshev series chopped where its coefficients
+    reach the rounding plateau (relative ``2e-16``): differentiating the plateau
+    would amplify rounding by ``n**(2k)``, while the chopped terms are below the
+    solution's own accuracy.
+    """
+    from numpy.polynomial import chebyshev as npcheb
+
+    basis = solution.grid.axes[0]
+    v = np.asarray(solution.fields[field], dtype=float)
+    c = basis.coeffs(v)
+    big = np.abs(c).max()
+    keep = np.nonzero(np.abs(c) > 2e-16 * max(big, 1e-300))[0]
+    m = (keep[-1] + 2) if keep.size else 1
+    c = c[: min(m, c.size)]
+    a, b = basis.domain
+    scale = 2.0 / (b - a)  # affine map: d/dz = (2/(b-a)) d/dxi
+    if not basis.map.__class__.__name__ == "AffineMap":
+        raise NotImplementedError("boundary Taylor coefficients need an affine radial grid")
+    x = -1.0 if index == 0 else 1.0
+    out = [float(npcheb.chebval(x, c))]
+    fact = 1.0
+    d = c
+    for k in range(1, order + 1):
+        fact *= k
+        d = npcheb.chebder(d) if d.size > 1 else np.zeros(1)
+        out.append(float(npcheb.chebval(x, d)) * scale**k / fact)
+    return np.array(out)
+
+
+def _mul_series(a, b, order=3):
+    out = np.zeros(order + 1)
+    for i in range(order + 1):
+        for j in range(order + 1 - i):
+            out[i + j] += a[i] * b[j]
+    return out
+
+
+def _g3(X, G):
+    X1, X2, X3 = X[1] / X[0], X[2] / X[0], X[3] / X[0]
+    G1, G2, G3 = G[1], G[2], G[3]
+    s2 = G2 / 4 - G1**2 / 16
+    s3 = G3 / 6 - G1 * G2 / 12 + G1**3 / 48
+    l2 = X2 - X1**2 / 2
+    l3 = X3 - X1 * X2 + X1**3 / 3
+    return l3 + 2 * s3 - G1 * (l2 + 2 * s2)
+
+
+def _stress_tensor(bg, sol):
+    """Internal-unit (z_h = 1) boundary data: energy, p_x, p_y, sources, vevs, raw energy."""
+    d = bg.d
+    fblack = np.zeros(4)
+    fblack[0] = 1.0
+    if d <= 3:
+        fblack[d] -= 1.0
+    A = taylor_at_boundary(sol, "A")
+    S = taylor_at_boundary(sol, "S" if bg.gauge == "deturck" else "A")
+    B = taylor_at_boundary(sol, "B")
+    C = taylor_at_boundary(sol, "C")
+    F = _mul_series(fblack, A)
+    inv_f = np.array([1.0, 0.0, 0.0, 1.0 if d == 3 else 0.0])  # 1/(1 - z^3) to O(z^4)
+    G = _mul_series(S, inv_f)
+    F0 = F[0]
+    g3F, g3B, g3C = _g3(F, G), _g3(B, G), _g3(C, G)
+    lam_rho2 = 0.0
+    srcs, vevs, lams, rho2s = [], [], [], []
+    for name in bg.scalar_fields:
+        psi = taylor_at_boundary(sol, name, order=1)
+        lam, rho2 = psi[0], psi[1] - G[1] * psi[0] / 2
+        lams.append(lam)
+        rho2s.append(rho2)
+        lam_rho2 += lam * rho2
+    energy = -3 * g3F - lam_rho2
+    px = 3 * g3B + lam_rho2
+    py = 3 * g3C + lam_rho2
+    energy_raw = 3 * (g3B + g3C) + lam_rho2
+    for lam, rho2 in zip(lams, rho2s):
+        if bg.quantization == "standard":
+            srcs.append(lam)
+            vevs.append(rho2)
+        else:
+            srcs.append(rho2)
+            vevs.append(-lam)
+    shift = 0.0
+    if bg.quantization in ("alternative", "mixed"):
+        shift = lam_rho2
+        if bg.quantization == "mixed":
+            from ..gravity import derivative
+
+            for lam in lams:
+                lh = lam / bg.T ** 1
+                w, wp = derivative(bg.multi_trace, lh)
+                # h = lambda W'(lambda) - W(lambda), in internal units (dimension 3)
+                shift -= (lh * wp - w) * bg.T**3
+    energy += shift
+    px -= shift
+    py -= shift
+    energy_raw += shift
+    mu = rho_c = 0.0
+    if bg.charged:
+        at = taylor_at_boundary(sol, "at", order=1)
+        mu, rho_c = at[0] / math.sqrt(F0), -at[1] / math.sqrt(F0)
+    return dict(energy=energy, p_x=px, p_y=py, energy_raw=energy_raw, sources=srcs, vevs=vevs,
+                lams=lams, rho2s=rho2s, mu=mu, charge=rho_c, G1=G[1], shift=shift)
+
+
+def _gauss_points(m):
+    x, w = np.polynomial.legendre.leggauss(m)
+    return 0.5 * (x + 1), 0.5 * w
+
+
+def _action_free_energy(bg, sol, st):
+    """Free energy density from the renormalised Euclidean action (internal units).
+
+    Bulk integral in the areal coordinate zeta = z (B C)^{-1/4} of the regular
+    integrand (docs/physics/black_branes.md, section d), by Gauss-Legendre on the
+    Chebyshev interpolant; the boundary limit from the areal-gauge relation
+    lim (B - B_sing) = f_3 with energy = -2 f_3 + lambda rho_2.
+    """
+    if bg.d != 3 or any(abs(sc.m2 + 2) > 1e-9 for sc in bg.model.uv):
+        return np.nan
+    grid = sol.grid
+    basis = grid.axes[0]
+    D1 = basis.diff_matrices(1)[0]
+    zq, wq = _gauss_points(max(48, 2 * basis.n))
+    P = basis.interp_matrix(zq)
+
+    def at(name):
+        v = sol.fields[name]
+        return P @ v, P @ (D1 @ v)
+
+    A, A1 = at("A")
+    S, S1 = at("S" if bg.gauge == "deturck" else "A")
+    B, B1 = at("B")
+    C, C1 = at("C")
+    z = zq
+    # areal coordinate and its z-derivative
+    q = (B * C) ** -0.25
+    q1 = -0.25 * q * (B1 / B + C1 / C)
+    zeta = z * q
+    zeta1 = q + z * q1
+    # e^{-chi} = A S / (B C) (dz/dzeta)^2
+    e_mchi = A * S / (B * C) / zeta1**2
+    # chi' in z: d/dz of -log(e^{-chi}); needs zeta'' -> use the spectral derivative of zeta'
+    zeta_nodes = grid.coords["z"] * (sol.fields["B"] * sol.fields["C"]) ** -0.25
+    dzeta_nodes = D1 @ zeta_nodes
+    d2zeta = P @ (D1 @ dzeta_nodes)
+    chi_z = -(A1 / A + S1 / S - B1 / B - C1 / C - 2 * d2zeta / zeta1)
+    w_z = 0.5 * (B1 / B - C1 / C)
+    integrand = np.zeros_like(z)
+    m = bg.model
+    if bg.scalar_fields:
+        psi_nodes = sol.fields[bg.scalar_fields[0]]
+        psi, psi1 = P @ psi_nodes, P @ (D1 @ psi_nodes)
+        rho = z * psi
+        h = psi / q  # rho / zeta
+        h1 = psi1 / q - psi * q1 / q**2
+        U_over_rho4 = _quartic_remainder(m.V, rho)
+        integrand += (0.5 * (h1 / zeta1) ** 2 + chi_z / zeta1 * rho**2 / (4 * zeta**3)
+                      + U_over_rho4 * (rho / zeta) ** 4)
+    integrand += (w_z / zeta1) ** 2 / (2 * zeta**2)
+    integral = np.sum(wq * np.sqrt(e_mchi) * integrand * zeta1)
+    if bg.charged:
+        at_nodes = sol.fields["at"]
+        at1 = P @ (D1 @ at_nodes)
+        # the Maxwell part of the on-shell Lagrangian: -sqrt(-g) Z F^2/4 = +(Z/2) sqrt(BC/(AS)) at_z^2
+        Zv = np.real(m.Z(z * (P @ sol.fields[bg.scalar_fields[0]]))) if bg.scalar_fields else 1.0
+        gauge = 0.5 * Zv * np.sqrt(B * C / (A * S)) * at1**2
+        integral_gauge = np.sum(wq * gauge)
+    else:
+        integral_gauge = 0.0
+    # horizon term B_sing(zeta_h) = e^{-chi_h/2} (2 + rho_h^2/2) / zeta_h^3
+    Bh, Ch = sol.fields["B"][-1], sol.fields["C"][-1]
+    Ah, Sh = sol.fields["A"][-1], sol.fields["S" if bg.gauge == "deturck" else "A"][-1]
+    zeta_h = (Bh * Ch) ** -0.25
+    dzeta_h = dzeta_nodes[-1]
+    e_mchi_h = Ah * Sh / (Bh * Ch) / dzeta_h**2
+    rho_h = sol.fields[bg.scalar_fields[0]][-1] if bg.scalar_fields else 0.0
+    b_sing_h = math.sqrt(e_mchi_h) * (2 + rho_h**2 / 2) / zeta_h**3
+    lam_rho2 = sum(l * r for l, r in zip(st["lams"], st["rho2s"]))
+    f3 = (lam_rho2 - (st["energy"] - st["shift"])) / 2
+    s_L = b_sing_h + integral + f3 + integral_gauge
+    return -s_L + st["shift"]
+
+
+def _quartic_remainder(V, rho):
+    """``(V(rho) + 6 + rho^2) / rho^4`` without cancellation (m^2 = -2 potentials).
+
+    Taylor's theorem with integral remainder: since ``U = V + 6 + rho^2`` has
+    ``U(0) = U^(1)(0) = U^(2)(0) = 0``, ``U(rho) = rho^3 U^(3)(0)/6 + rho^4 int_0^1 (1-t)^3/6
+    U^(4)(t rho) dt`` with ``U^(4) = V^(4)`` (nested dual numbers), by 16-point
+    Gauss-Legendre in ``t``.
+    """
+    from ..gravity import derivative
+
+    def nth(fn, k):
+        for _ in range(k):
+            fn = (lambda g: (lambda y: derivative(g, y)[1]))(fn)
+        return fn
+
+    d3 = float(np.real(nth(V, 3)(0.0)))
+    d4 = nth(V, 4)
+    t, w = np.polynomial.legendre.leggauss(16)
+    t, w = 0.5 * (t + 1), 0.5 * w
+    rho = np.asarray(rho, dtype=float)
+    acc = np.zeros_like(rho)
+    for tj, wj in zip(t, w):
+        acc += wj * (1 - tj) ** 3 / 6 * np.real(d4(tj * rho))
+    if d3:
+        with np.errstate(divide="ignore", invalid="ignore"):
+            acc = acc + np.where(rho != 0, d3 / (6 * rho), 0.0)
+    return acc
+
+
+def _deturck_norm(bg, sol):
+    basis = sol.grid.axes[0]
+    z = basis.points[1:-1]
+    D = basis.diff_matrices(2)
+    fs = {}
+    for name in bg.fields:
+        v = sol.fields[name]
+        fs[name] = Series(np.stack([v, D[0] @ v, (D[1] @ v) / 2])[:, 1:-1], 0)
+    out = bg.evaluate(coordinate_series(z), fs, sol.params)
+    xi2 = out["xi2"]
+    if isinstance(xi2, Series):
+        return float(np.max(np.abs(xi2.coefficient(0))))
+    return 0.0
+
+
+def brane_observables(bg, sol):
+    """Dimensionless observables (units of T) and certificate of a brane solution."""
+    T = bg.T
+    st = _stress_tensor(bg, sol)
+    Bh, Ch = sol.fields["B"][-1], sol.fields["C"][-1]
+    Ah, Sh = sol.fields["A"][-1], sol.fields["S" if bg.gauge == "deturck" else "A"][-1]
+    s = 4 * math.pi * math.sqrt(Bh * Ch)
+    T_sol = T * math.sqrt(Ah / Sh)
+    f_thermo = st["energy"] - T * s - st["mu"] * st["charge"]
+    f_action = _action_free_energy(bg, sol, st)
+    scale = max(abs(st["energy"]), T * s, abs(st["p_x"]), abs(st["p_y"]), abs(f_thermo))
+    obs = {
+        "T": 1.0,
+        "s": s / T**2,
+        "f": f_thermo / T**3,
+        "energy": st["energy"] / T**3,
+        "p_x": st["p_x"] / T**3,
+        "p_y": st["p_y"] / T**3,
+        "f_action": f_action / T**3,
+    }
+    # sources and vevs in units of T
+    for (dm, src_dim), name, src, vev in zip(bg._dims(), bg.source_names(), st["sources"], st["vevs"]):
+        suffix = "" if name == "lam" else name[3:]
+        vev_dim = bg.d - src_dim
+        obs["source" + suffix] = src / T**src_dim
+        obs["vev" + suffix] = vev / T**vev_dim
+    for name in bg.scalar_fields:
+        suffix = "" if name == "psi" else name[3:]
+        obs["rho_h" + suffix] = float(sol.fields[name][-1])  # z = 1 at the horizon
+    if bg.charged:
+        obs["mu"] = st["mu"] / T
+        obs["charge"] = st["charge"] / T**2
+    # certificate
+    trace = -st["energy"] + st["p_x"] + st["p_y"]
+    # (d - Delta_I) is the dimension of the source
+    ward_rhs = sum(sd * j * o for (_, sd), j, o in zip(bg._dims(), st["sources"], st["vevs"]))
+    if bg.quantization == "mixed":
+        ward_rhs = np.nan  # the multi-trace term changes the trace identity (not checked)
+    homogeneous_y = bg.n_axions == 0
+    obs.update({
+        "residual": float(sol.residual),
+        "tail": float(max(sol.tail.values())),
+        "ward_trace": float(abs(trace - ward_rhs) / scale),
+        "thermo": float(abs(st["energy"] + st["p_y"] - T * s - st["mu"] * st["charge"]) / scale)
+        if homogeneous_y else np.nan,
+        "py_f": float(abs(st["p_y"] + f_thermo) / scale) if homogeneous_y else np.nan,
+        "action": float(abs(f_action - f_thermo) / scale) if np.isfinite(f_action) else np.nan,
+        "deturck": _deturck_norm(bg, sol),
+        "temperature": float(abs(T_sol / T - 1)),
+    })
+    if getattr(bg, "component_quantization", None):
+        obs.update(_split_profiles(bg, st, T))
+    return obs
+
+
+def _split_profiles(bg, st, T, npts=16):
+    """x-profiles over one period when the two Q-lattice components are quantised differently.
+
+    Component 1 (cos kx) standard, component 2 (sin kx) alternative: the Legendre term of
+    component 2 adds ``-lambda rho_2 sin^2(kx)`` to <T_ij> (docs section b).
+    """
+    lam, rho2 = st["lams"][0], st["rho2s"][0]
+    # the bulk is the standard-quantised Q-lattice; undo a global shift if any
+    e0, px0, py0 = st["energy"] - st["shift"], st["p_x"] + st["shift"], st["p_y"] + st["shift"]
+    kx = np.linspace(0, 2 * np.pi, npts, endpoint=False)
+    s2 = np.sin(kx) ** 2
+    out = {
+        "x_phase": kx,
+        "energy_profile": (e0 + lam * rho2 * s2) / T**3,
+        "p_x_profile": (px0 - lam * rho2 * s2) / T**3,
+        "p_y_profile": (py0 - lam * rho2 * s2) / T**3,
+        "source1_profile": lam * np.cos(kx) / T,
+        "source2_profile": rho2 * np.sin(kx) / T**2,
+        "vev1_profile": rho2 * np.cos(kx) / T**2,
+        "vev2_profile": -lam * np.sin(kx) / T,
+    }
+    out["energy_avg"] = float(out["energy_profile"].mean())
+    out["p_x_avg"] = float(out["p_x_profile"].mean())
+    out["p_y_avg"] = float(out["p_y_profile"].mean())
+    # pointwise trace Ward identity: -e + p_x + p_y = sum (3 - Delta_I) src_I <O_I>
+    lhs = -out["energy_profile"] + out["p_x_profile"] + out["p_y_profile"]
+    rhs = 1 * out["source1_profile"] * out["vev1_profile"] + 2 * out["source2_profile"] * out["vev2_profile"]
+    out["ward_trace_profile"] = float(np.max(np.abs(lhs - rhs)) / max(1.0, np.abs(out["energy_profile"]).max()))
+    return out
