@@ -3,7 +3,7 @@
 Grids
     Chebyshev, Fourier        one-dimensional collocation bases
     TensorGrid, Grid          tensor products of bases
-    AffineMap, HalfLineMap, ClusterMap   coordinate maps for Chebyshev directions
+    AffineMap, HalfLineMap, ClusterMap, ExponentialMap   coordinate maps
 Newton-Kantorovich engine
     Problem                   a boundary-value problem written pointwise
     solve                     damped Newton solve returning a certified SolveResult
@@ -16,7 +16,7 @@ Utilities
 
 from . import exceptions
 from ._version import __version__
-from .grids import AffineMap, Chebyshev, ClusterMap, Fourier, Grid, HalfLineMap, TensorGrid
+from .grids import AffineMap, Chebyshev, ClusterMap, ExponentialMap, Fourier, Grid, HalfLineMap, TensorGrid
 from .newton import NewtonOptions, Problem, SolveResult, check_jacobian, solve
 from ._versions import show_versions
 
@@ -30,6 +30,7 @@ __all__ = [
     "AffineMap",
     "HalfLineMap",
     "ClusterMap",
+    "ExponentialMap",
     "Problem",
     "solve",
     "SolveResult",

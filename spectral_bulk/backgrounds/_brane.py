@@ -162,7 +162,9 @@ class Brane:
         if n not in self._problems:
             grid = Chebyshev(n, (0.0, 1.0), name="z")
             bc = {"z=0": self._uv_rows, "z=1": self._horizon_rows}
+            # scalars may be tiny (small sources): measure them relative to themselves
             self._problems[n] = Problem(grid, self.fields, self._equations, bc, self.default_params(),
+                                        scales={f: 1e-8 for f in self.scalar_fields},
                                         name=type(self).__name__)
         return self._problems[n]
 

@@ -259,7 +259,9 @@ def _plot_family(ds, param, observables, args):
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    names = [args.observable] if args.observable else [o for o in observables if ds[o].ndim == 1][:2]
+    preferred = [o for o in ds.attrs.get("plot_observables", "").split(",") if o in ds]
+    names = ([args.observable] if args.observable else
+             preferred or [o for o in observables if ds[o].ndim == 1][:2])
     if not names:
         raise ConfigError("the family has no scalar observable to plot; pass --observable NAME")
     for n in names:
@@ -270,11 +272,18 @@ def _plot_family(ds, param, observables, args):
     for ax, n in zip(axes[:, 0], names):
         ax.plot(x, ds[n].values, "-", lw=1.2, color="C0")
         ax.plot(x, ds[n].values, ".", ms=3, color="C0")
+        y = ds[n].values
         for i in range(ds.sizes.get("event", 0)):
             k = int(ds.event_point.values[i])
+            xe = float(ds.event_value.values[i])
+            # located events that are not points of the family sit between two points
+            if abs(x[k] - xe) > 1e-12 * max(1.0, abs(xe)) and 0 < k < len(x):
+                f = (xe - x[k - 1]) / (x[k] - x[k - 1]) if x[k] != x[k - 1] else 0.0
+                ye = y[k - 1] + f * (y[k] - y[k - 1])
+            else:
+                ye = y[k]
             style = {"fold": ("C3", "o"), "branch": ("C2", "s")}.get(str(ds.event_kind.values[i]), ("k", "x"))
-            ax.plot(x[k], ds[n].values[k], style[1], color=style[0], ms=7,
-                    label=f"{ds.event_kind.values[i]} at {x[k]:.6g}")
+            ax.plot(xe, ye, style[1], color=style[0], ms=7, label=f"{ds.event_kind.values[i]} at {xe:.6g}")
         ax.set_xlabel(ds[param].attrs.get("long_name", param))
         ax.set_ylabel(ds[n].attrs.get("long_name", n))
         if ds.sizes.get("event", 0):

@@ -307,16 +307,29 @@ class _Follower:
         return out
 
     @staticmethod
-    def wnorm(t_u, t_lam):
-        return np.sqrt(np.dot(t_u, t_u) / t_u.size + t_lam**2)
+    def metric(prob, u):
+        """Weights of the field part of the inner product at state ``u``.
 
-    def bordered(self, prob, u, lam, t_u, t_lam, check=True):
+        ``<du, dv> = sum_f w_f^2 sum_p du_fp dv_fp / m`` with ``w_f = 1/max(max|u_f|, 1)``:
+        fields of order one count as they are, large fields by their relative change, so
+        that a field growing with the parameter does not shrink the parameter steps.
+        """
+        mags = np.abs(prob.split(u)).max(axis=1)
+        w2 = 1.0 / np.maximum(mags, 1.0) ** 2
+        return np.repeat(w2, prob.grid.size) / u.size
+
+    @staticmethod
+    def wnorm(m, t_u, t_lam):
+        return np.sqrt(np.dot(m * t_u, t_u) + t_lam**2)
+
+    def bordered(self, prob, u, lam, t_u, t_lam, check=True, m=None):
         """Linearise at (u, lam) and factorise B with border (t_u, t_lam)."""
         pv = self.pv(lam)
         F, A = prob.linearize(u, pv)
         Fl = prob.param_derivative(u, self.param, pv)
         self.branch.njev += 1
-        solver = make_solver(prob, A, self.o.linear_solver, border=(Fl, t_u / u.size, t_lam),
+        m = self.metric(prob, u) if m is None else m
+        solver = make_solver(prob, A, self.o.linear_solver, border=(Fl, m * t_u, t_lam),
                              rtol=self.o.linear_rtol(), check=check)
         return F, A, Fl, solver
 
@@ -324,10 +337,11 @@ class _Follower:
         """Pseudo-arclength corrector from the predicted (u, lam)."""
         u = u.copy()
         prev = None
+        m = self.metric(prob, x0_u)
         for k in range(self.o.max_corrector):
             try:
-                F, A, Fl, solver = self.bordered(prob, u, lam, t_u, t_lam, check)
-                N = np.dot(t_u, u - x0_u) / u.size + t_lam * (lam - x0_lam) - ds
+                F, A, Fl, solver = self.bordered(prob, u, lam, t_u, t_lam, check, m=m)
+                N = np.dot(m * t_u, u - x0_u) + t_lam * (lam - x0_lam) - ds
                 d = -solver.solve(np.concatenate([F, [N]]))
             except SingularJacobianError:
                 return None
@@ -362,7 +376,8 @@ class _Follower:
         the bordered matrix is nearly singular) the previous tangent is kept and
         only the determinant is evaluated.
         """
-        F, A, Fl, solver = self.bordered(prob, u, lam, t_prev_u, t_prev_lam, check=tangent)
+        m = self.metric(prob, u)
+        F, A, Fl, solver = self.bordered(prob, u, lam, t_prev_u, t_prev_lam, check=tangent, m=m)
         try:
             sign, logdet = solver.slogdet() if "branch" in self.o.events else (np.nan, np.nan)
             if tangent:
@@ -370,7 +385,7 @@ class _Follower:
                 rhs[-1] = 1.0
                 z = solver.solve(rhs)
                 t_u, t_lam = z[:-1], z[-1]
-                nz = self.wnorm(t_u, t_lam)
+                nz = self.wnorm(m, t_u, t_lam)
                 t_u, t_lam = t_u / nz, t_lam / nz
             else:
                 t_u, t_lam = t_prev_u, t_prev_lam
@@ -442,12 +457,19 @@ class _Follower:
         u = p.prob.grid.evaluate(p.prob.split(p.u), *mesh).ravel()
         t_u = p.prob.grid.evaluate(p.prob.split(p.t_u), *mesh).ravel()
         t_lam = p.t_lam
-        nz = self.wnorm(t_u, t_lam)
+        nz = self.wnorm(self.metric(new, u), t_u, t_lam)
         t_u, t_lam = t_u / nz, t_lam / nz
-        out = self.correct(new, u, p.lam, t_u, t_lam, u, p.lam, 0.0)
-        if out is None:
-            return None
-        u2, lam2, it, upd = out
+        if p.kind in ("target", "bound", "start"):
+            # these points keep their parameter value exactly: re-converge at fixed parameter
+            res = self.natural(new, u, p.lam)
+            if res is None:
+                return None
+            u2, lam2, it, upd = res.state, p.lam, res.iterations, res.update
+        else:
+            out = self.correct(new, u, p.lam, t_u, t_lam, u, p.lam, 0.0)
+            if out is None:
+                return None
+            u2, lam2, it, upd = out
         q = self.finish_point(new, u2, lam2, t_u, t_lam, s=p.s, step=p.step, kind=p.kind,
                               iterations=(p.iterations or 0) + it, update=upd)
         log.info("regrid at %s=%.8g: n %s -> %s", self.param, p.lam, p.prob.grid.shape, shape)
@@ -565,7 +587,7 @@ class _Follower:
         if res is None:
             return None
         t_lam = base.t_lam + f * (new.t_lam - base.t_lam)
-        nz = self.wnorm(t_u, t_lam)
+        nz = self.wnorm(self.metric(prob, res.state), t_u, t_lam)
         p = self.finish_point(prob, res.state, value, t_u / nz, t_lam / nz,
                               s=base.s + f * (new.s - base.s), step=f * (new.s - base.s),
                               kind=kind, iterations=res.iterations, update=res.update)
@@ -903,11 +925,11 @@ def switch(branch, event, *, step=0.05, bounds=None, max_points=200, targets=(),
         except SingularJacobianError:  # exactly singular: use the dense SVD instead
             from ..newton import DenseSolver
 
-            m = DenseSolver(prob, A, border=(Fl, t_u / u.size, t_lam)).matrix
-            z = np.linalg.svd(m)[2][-1]
+            mat = DenseSolver(prob, A, border=(Fl, _Follower.metric(prob, u) * t_u, t_lam)).matrix
+            z = np.linalg.svd(mat)[2][-1]
             break
     phi_u, phi_lam = z[:-1], z[-1]
-    nz = _Follower.wnorm(phi_u, phi_lam)
+    nz = _Follower.wnorm(_Follower.metric(prob, u), phi_u, phi_lam)
     phi_u, phi_lam = phi_u / nz, phi_lam / nz
     ref = phi_lam if abs(phi_lam) > 1e-8 else np.sum(phi_u)
     if np.sign(ref) != np.sign(step):

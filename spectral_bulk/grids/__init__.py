@@ -7,7 +7,7 @@ Functional core (plain functions, exact and documented):
 
 Classes:
 ``Chebyshev``, ``Fourier`` (one-dimensional bases), ``Grid``/``TensorGrid`` (products),
-``AffineMap``, ``HalfLineMap``, ``ClusterMap`` (coordinate maps).
+``AffineMap``, ``HalfLineMap``, ``ClusterMap``, ``ExponentialMap`` (coordinate maps).
 """
 
 from ._basis import Basis, Chebyshev, Fourier
@@ -23,7 +23,7 @@ from ._chebyshev import (
 )
 from ._fourier import fourier_coeffs, fourier_derivative, fourier_diff_matrices, fourier_nodes
 from ._grid import Grid, TensorGrid, as_grid
-from ._maps import AffineMap, ClusterMap, CoordinateMap, HalfLineMap
+from ._maps import AffineMap, ClusterMap, CoordinateMap, ExponentialMap, HalfLineMap
 
 __all__ = [
     "Basis",
@@ -36,6 +36,7 @@ __all__ = [
     "AffineMap",
     "HalfLineMap",
     "ClusterMap",
+    "ExponentialMap",
     "cheb_nodes",
     "cheb_diff_matrices",
     "values_to_coeffs",

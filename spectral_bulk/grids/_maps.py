@@ -17,9 +17,11 @@ Implement
 The public methods validate and broadcast; they own no other logic.
 """
 
+import math
+
 import numpy as np
 
-__all__ = ["CoordinateMap", "AffineMap", "HalfLineMap", "ClusterMap"]
+__all__ = ["CoordinateMap", "AffineMap", "HalfLineMap", "ClusterMap", "ExponentialMap"]
 
 
 class CoordinateMap:
@@ -195,3 +197,40 @@ class ClusterMap(CoordinateMap):
         xi_y = 1 / dy
         xi_yy = -d2y / dy**3
         return dy / h, xi_y * h, xi_yy * h**2
+
+
+class ExponentialMap(CoordinateMap):
+    """Map for structure spread over many scales: uniform in ``log(x - a)`` beyond ``scale``.
+
+    ``x = a + s (exp(c (xi + 1)/2) - 1)`` with ``c = log(1 + (b - a)/s)``: close to
+    affine for ``x - a << s`` (so expansions analytic at ``x = a`` stay analytic), and
+    points spaced evenly in ``log(x - a)`` for ``x - a >> s``.  Suited to flows whose
+    features sit at exponentially separated radii.
+
+    Parameters
+    ----------
+    scale : float
+        The scale ``s`` (> 0) where the spacing turns logarithmic.
+    """
+
+    def __init__(self, scale):
+        scale = float(scale)
+        if not scale > 0:
+            raise ValueError(f"`scale` must be positive, got {scale}")
+        self.scale = scale
+
+    def _c(self, a, b):
+        return math.log1p((b - a) / self.scale)
+
+    def _forward(self, xi, a, b):
+        c = self._c(a, b)
+        return a + self.scale * np.expm1(c * (xi + 1) / 2)
+
+    def _inverse(self, x, a, b):
+        c = self._c(a, b)
+        return 2 * np.log1p((x - a) / self.scale) / c - 1
+
+    def _derivs(self, xi, a, b):
+        c = self._c(a, b)
+        dx = self.scale * (c / 2) * np.exp(c * (xi + 1) / 2)
+        return dx, 1 / dx, -(c / 2) / dx**2

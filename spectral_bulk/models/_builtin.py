@@ -1,8 +1,10 @@
 """A small library of models of our own, addressable by name from configs.
 
 * ``"mass2"``: V = -6 - rho^2, Phi = rho^2 (a complex scalar of m^2 = -2; Delta = 2 or 1).
-* ``"quartic_well"``: V = -6 - rho^2 + rho^4/5, Phi = rho^2 (a second critical point of V at
-  rho^2 = 5/2, an AdS fixed point of smaller radius reached by the flows).
+* ``"quartic_well"``: V = -6 - rho^2 + rho^4, Phi = rho^2 (a second critical point of V at
+  rho^2 = 1/2: an AdS4 of radius 0.9798 where the scalar is irrelevant, so homogeneous
+  flows end there and large-coupling lattice walls linger near it before returning to the
+  UV fixed point in the infrared).
 * ``"cosh_phase"``: V = -6 - rho^2, Phi = 4 sinh(rho/2)^2 (a phase metric that grows faster
   than rho^2, still rho^2 near the origin).
 * ``"einstein"``: pure gravity (a massless decoupled scalar that stays zero).
@@ -20,7 +22,7 @@ def _mass2(rho):
 
 
 def _quartic_well(rho):
-    return -6 - rho**2 + rho**4 / 5
+    return -6 - rho**2 + rho**4
 
 
 def _square(rho):

@@ -113,7 +113,13 @@ class DenseSolver:
     def __init__(self, problem, A, border=None, matrix=None, check=True):
         self.check = check
         J = assemble_dense(problem, A) if matrix is None else matrix
-        self.matrix = _bordered_dense(J, border)
+        M = _bordered_dense(J, border)
+        # row equilibration: rows of different equations (or of strongly mapped grids)
+        # differ in scale by many orders; scaling them makes LU and the condition
+        # estimate meaningful (the determinant is corrected in slogdet)
+        rmax = np.abs(M).max(axis=1)
+        self.rscale = np.where(rmax > 0, 1.0 / np.where(rmax > 0, rmax, 1.0), 1.0)
+        self.matrix = M * self.rscale[:, None]
         # raw LAPACK getrf/getrs: the checking wrappers cost more than small factorisations
         self.lu, self.piv, info = sla.lapack.dgetrf(self.matrix)
         d = np.abs(np.diag(self.lu))
@@ -141,7 +147,7 @@ class DenseSolver:
             raise SingularJacobianError(
                 f"singular Jacobian (reciprocal condition estimate {self.rcond:.1e})"
             )
-        x, info = sla.lapack.dgetrs(self.lu, self.piv, rhs)
+        x, info = sla.lapack.dgetrs(self.lu, self.piv, rhs * self.rscale)
         return x
 
     def slogdet(self):
@@ -149,7 +155,7 @@ class DenseSolver:
         swaps = np.count_nonzero(self.piv != np.arange(len(self.piv)))  # getrf pivots are 0-based
         sign = (-1.0) ** swaps * np.prod(np.sign(d))
         with np.errstate(divide="ignore"):
-            return float(sign), float(np.sum(np.log(np.abs(d))))
+            return float(sign), float(np.sum(np.log(np.abs(d))) - np.sum(np.log(self.rscale)))
 
 
 class KrylovSolver:
