@@ -233,10 +233,19 @@ def cmd_show(args):
     extra = [k for k in ds.data_vars if ds[k].attrs.get("observable") == 1]
     if extra:
         print(f"  observables: {', '.join(extra)}")
+    from ..backgrounds._config import BRANE_CERTIFICATE
+    from ..holography import WALL_CERTIFICATE
+
+    limits = {**BRANE_CERTIFICATE, **WALL_CERTIFICATE}
     for k in ds.data_vars:
-        if k.startswith("cert_"):
-            worst = np.nanmax(np.abs(ds[k].values))
-            print(f"  worst {k[5:]} {worst:.2e}")
+        if k.startswith("cert_") and k[5:] not in ("residual", "tail"):
+            worst = np.nanmax(np.abs(ds[k].values)) if np.any(np.isfinite(ds[k].values)) else np.nan
+            lim = limits.get(k[5:])
+            note = f" (limit {lim:.0e})" if lim else (" (depends on the point spacing)"
+                                                      if k == "cert_first_law" else "")
+            print(f"  worst {k[5:]} {worst:.2e}{note}")
+            if lim is not None and np.isfinite(worst) and worst > lim:
+                certified = False
     print(f"  certificate: {'all points pass' if certified else 'FAILED at some points'}")
     if args.plot is not None:
         png = _plot_family(ds, param, extra, args)
