@@ -226,3 +226,19 @@ def test_log_terms_are_warned_about():
 def test_unknown_parameter_is_named(mass2):
     with pytest.raises(ProblemDefinitionError, match="unknown parameter"):
         QLatticeBrane(mass2).solve(lam=1.0, kk=2.0)
+
+
+def test_far_guess_terminates_and_homotopy_reaches_the_point(mass2):
+    # regression: the damping could alternate between reducing and enlarging the step
+    # forever; each Newton iteration now enlarges at most once
+    from spectral_bulk.newton._newton import NewtonOptions, _newton, initial_state
+
+    bg = QLatticeBrane(mass2, n=40, n_max=240)
+    pr = bg.problem(40)
+    params = {"lam": 30.0, "k": 30.0}
+    res = _newton(pr, initial_state(pr, bg._trivial_guess(params)), params,
+                  NewtonOptions(max_iter=40).validated())
+    assert res.nfev <= 10 * 40
+    # the public solve falls back to continuation from the trivial background
+    sol = bg.solve(**params)
+    assert sol.converged and sol.observables["ward_trace"] < 1e-8

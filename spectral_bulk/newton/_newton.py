@@ -317,6 +317,7 @@ def _newton(problem, u, params, opts, first_is_input=False):
             denom = scaled_norm(problem, dxbar_prev - dx, u) * ndx
             mu = ndx_prev * scaled_norm(problem, dxbar_prev, u) / denom * lam_prev if denom > 0 else 1.0
             lam = min(1.0, mu)
+        reduced = False  # the step may be enlarged once, and only if it was never reduced
         while True:
             if lam < opts.lambda_min:
                 fmt["update"] = ndx
@@ -332,6 +333,7 @@ def _newton(problem, u, params, opts, first_is_input=False):
                     fmt["where"] = f"after an undamped step at iteration {info['njev']}"
                     return finish(3, u, A=A, F=F, solver=solver)
                 lam /= 2
+                reduced = True
                 continue
             if not opts.damping:
                 dxbar = None
@@ -342,10 +344,12 @@ def _newton(problem, u, params, opts, first_is_input=False):
             mu_p = 0.5 * ndx * lam**2 / dd if dd > 0 else np.inf
             if theta >= 1 - lam / 4:
                 lam = min(mu_p, lam / 2)
+                reduced = True
                 continue
             lam_new = min(1.0, mu_p)
-            if lam_new >= 4 * lam and lam < 1:
+            if lam_new >= 4 * lam and lam < 1 and not reduced:
                 lam = lam_new
+                reduced = True  # one enlargement per iteration: no ping-pong
                 continue
             break
         info["damping"].append(lam)
