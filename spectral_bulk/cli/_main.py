@@ -83,6 +83,9 @@ def main(argv=None):
     except KeyboardInterrupt:
         print("spectral-bulk: interrupted", file=sys.stderr)
         code = EXIT_INTERRUPTED
+    except BrokenPipeError:  # output piped into a pager or head that closed early
+        sys.stdout = open(os.devnull, "w")
+        code = EXIT_OK
     except SpectralBulkError as exc:
         print(f"spectral-bulk: error: {_one_line(exc)}", file=sys.stderr)
         code = EXIT_INPUT
