@@ -37,7 +37,7 @@ from ..gravity import MatterContent, Series, coordinate_series, einstein_deturck
 from ..models import BulkModel, QLatticeModel
 from ..newton import NewtonOptions, Problem, SolveResult, solve
 
-__all__ = ["Brane", "BlackBrane", "QLatticeBrane", "AxionBrane", "BraneSolution"]
+__all__ = ["Brane", "BlackBrane", "QLatticeBrane", "AxionBrane", "BackgroundSolution", "BraneSolution"]
 
 def _field_series(f, name, prec=3):
     vals = [getattr(f, name), getattr(f, name + "_z"), getattr(f, name + "_zz")]
@@ -45,11 +45,11 @@ def _field_series(f, name, prec=3):
     return Series(np.stack([vals[0], vals[1], vals[2] / 2]), 0)
 
 
-class BraneSolution(SolveResult):
-    """A brane solution: the Newton result plus its boundary observables.
+class BackgroundSolution(SolveResult):
+    """A background solution: the Newton result plus its boundary observables.
 
-    ``observables`` is a dict of dimensionless numbers in units of T (see
-    :meth:`Brane.observables`); ``background`` is the :class:`Brane` that made it.
+    ``observables`` is a dict of dimensionless numbers (units of T for branes, of k for
+    walls; see the backgrounds' ``observables``); ``background`` is the object that made it.
     """
 
     @classmethod
@@ -312,7 +312,7 @@ class Brane:
             n = min(self.n_max, int(math.ceil(pr.grid.shape[0] * 1.5)))
             pr = self.problem(n)
             res = self._newton(pr, res, target)
-        sol = BraneSolution.wrap(res, self)
+        sol = BackgroundSolution.wrap(res, self)
         if res.converged:
             self._last = res
         else:
@@ -429,6 +429,9 @@ def _add_family_certificates(ds, param):
             "long_name": f"first-law residual along the family in {param} (5-point derivative)",
             "units": "1"})
     return ds
+
+
+BraneSolution = BackgroundSolution
 
 
 class BlackBrane(Brane):

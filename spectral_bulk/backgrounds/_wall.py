@@ -40,6 +40,7 @@ from ..grids import Chebyshev, ExponentialMap
 from ..gravity import MatterContent, Series, coordinate_series, einstein_deturck
 from ..models import BulkModel, QLatticeModel, critical_points
 from ..newton import NewtonOptions, Problem, SolveResult
+from ._brane import BackgroundSolution
 
 __all__ = ["QLatticeWall", "DomainWall", "WallSolution"]
 
@@ -50,16 +51,7 @@ def _fs(f, name):
     return Series(np.stack([vals[0], vals[1], vals[2] / 2]), 0)
 
 
-class WallSolution(SolveResult):
-    """A wall solution with ``.observables`` and ``.background``."""
-
-    @classmethod
-    def wrap(cls, res, background):
-        out = object.__new__(cls)
-        out.__dict__.update(res.__dict__)
-        out.background = background
-        out.observables = background.observables(res)
-        return out
+WallSolution = BackgroundSolution
 
 
 class QLatticeWall:

@@ -86,7 +86,7 @@ def cmd_solve(args):
     path = args.config
     cfg, text = load_config(path)
     if "background" in cfg:
-        from ..backgrounds._config import solve_background_config
+        from ._backgrounds import solve_background_config
 
         return solve_background_config(cfg, text, args)
     check_top_level(cfg, ENGINE_SECTIONS, path)
@@ -176,7 +176,7 @@ def cmd_follow(args):
     path = args.config
     cfg, text = load_config(path)
     if "background" in cfg:
-        from ..backgrounds._config import follow_background_config
+        from ._backgrounds import follow_background_config
 
         return follow_background_config(cfg, text, args)
     check_top_level(cfg, ENGINE_SECTIONS, path)
@@ -233,8 +233,7 @@ def cmd_show(args):
     extra = [k for k in ds.data_vars if ds[k].attrs.get("observable") == 1]
     if extra:
         print(f"  observables: {', '.join(extra)}")
-    from ..backgrounds._config import BRANE_CERTIFICATE
-    from ..holography import WALL_CERTIFICATE
+    from ..holography import BRANE_CERTIFICATE, WALL_CERTIFICATE
 
     limits = {**BRANE_CERTIFICATE, **WALL_CERTIFICATE}
     for k in ds.data_vars:

@@ -9,7 +9,13 @@
 ``classify_flow``       regimes of a flow near fixed points, with their extent in e-folds
 """
 
-from ._branes import CERTIFICATE_KEYS, brane_observables, taylor_at_boundary
+from ._branes import (
+    BRANE_CERTIFICATE,
+    CERTIFICATE_KEYS,
+    brane_observables,
+    certificate_failures,
+    taylor_at_boundary,
+)
 from ._identities import family_derivative, first_law_residuals
 from ._walls import (
     WALL_CERTIFICATE,
@@ -23,7 +29,8 @@ from ._walls import (
     wall_profile,
 )
 
-__all__ = ["brane_observables", "taylor_at_boundary", "CERTIFICATE_KEYS", "first_law_residuals",
+__all__ = ["brane_observables", "taylor_at_boundary", "CERTIFICATE_KEYS", "BRANE_CERTIFICATE",
+           "certificate_failures", "first_law_residuals",
            "family_derivative", "wall_observables", "wall_profile", "fixed_points", "classify_flow",
            "ir_events", "domain_wall_observables", "local_taylor", "critical_coupling_estimate",
            "WALL_CERTIFICATE"]

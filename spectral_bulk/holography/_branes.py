@@ -27,11 +27,30 @@ import numpy as np
 
 from ..gravity import Series, coordinate_series
 
-__all__ = ["brane_observables", "taylor_at_boundary", "CERTIFICATE_KEYS"]
+__all__ = ["brane_observables", "taylor_at_boundary", "CERTIFICATE_KEYS", "BRANE_CERTIFICATE",
+           "certificate_failures"]
 
 #: Keys of the certificate part of the observables.
 CERTIFICATE_KEYS = ("residual", "tail", "ward_trace", "thermo", "py_f", "action", "deturck",
                     "temperature")
+
+#: Certificate thresholds (relative residuals) of brane observables; the stress tensor needs
+#: third boundary Taylor coefficients, accurate to ~1e-9 relative.
+BRANE_CERTIFICATE = {"ward_trace": 1e-8, "thermo": 1e-8, "py_f": 1e-8, "action": 1e-8,
+                     "temperature": 1e-10, "deturck": 1e-10}
+
+
+def certificate_failures(bg, obs):
+    """Names of the certificate entries of ``obs`` above their thresholds (empty: certified)."""
+    from ._walls import WALL_CERTIFICATE
+
+    limits = WALL_CERTIFICATE if type(bg).__name__.endswith("Wall") else BRANE_CERTIFICATE
+    bad = []
+    for key, lim in limits.items():
+        v = obs.get(key, np.nan)
+        if isinstance(v, (float, int, np.floating)) and np.isfinite(v) and v > lim:
+            bad.append(f"{key}={v:.1e}>{lim:.0e}")
+    return bad
 
 
 def taylor_at_boundary(solution, field, order=3, index=0):

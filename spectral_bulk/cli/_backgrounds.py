@@ -40,9 +40,10 @@ import numpy as np
 
 from .._config import check_section, check_top_level, load_builder
 from ..exceptions import ConfigError
+from ..holography import certificate_failures
+from ._commands import Progress, _output_path, print_branch_summary
 
-__all__ = ["build_background", "solve_background_config", "follow_background_config",
-           "BRANE_CERTIFICATE", "certificate_failures"]
+__all__ = ["build_background", "solve_background_config", "follow_background_config"]
 
 SECTIONS = {"title", "background", "model", "params", "follow", "output"}
 BACKGROUND_KEYS = {"kind": str, "quantization": str, "n": int, "tol": float, "n_max": int,
@@ -52,11 +53,6 @@ MODEL_KEYS = {"builtin": str, "file": str, "potential": str, "phase_metric": str
 FOLLOW_KEYS = {"param": str, "stop": float, "step": float, "max_points": int, "targets": list,
                "bounds": dict, "max_step": float, "min_step": float, "tol": float, "n_max": int}
 KINDS = ("black_brane", "qlattice_brane", "axion_brane", "qlattice_wall", "domain_wall")
-
-#: Certificate thresholds (relative residuals) of brane observables.
-BRANE_CERTIFICATE = {"ward_trace": 1e-8, "thermo": 1e-8, "py_f": 1e-8, "action": 1e-8,
-                     "temperature": 1e-10, "deturck": 1e-10}
-
 
 def _model(cfg, path):
     from ..models import BulkModel, QLatticeModel, builtin
@@ -81,7 +77,7 @@ def _model(cfg, path):
 
 def build_background(cfg, path):
     """The background object described by ``[background]`` and ``[model]``."""
-    from . import AxionBrane, BlackBrane, DomainWall, QLatticeBrane, QLatticeWall
+    from ..backgrounds import AxionBrane, BlackBrane, DomainWall, QLatticeBrane, QLatticeWall
 
     check_top_level(cfg, SECTIONS, path)
     sec = check_section(cfg, "background", BACKGROUND_KEYS, path=path, required=("kind",))
@@ -107,19 +103,6 @@ def build_background(cfg, path):
     return DomainWall(model, **opts)
 
 
-def certificate_failures(bg, obs):
-    """Names of certificate entries above their thresholds (empty when certified)."""
-    from ..holography import WALL_CERTIFICATE
-
-    limits = WALL_CERTIFICATE if type(bg).__name__.endswith("Wall") else BRANE_CERTIFICATE
-    bad = []
-    for key, lim in limits.items():
-        v = obs.get(key, np.nan)
-        if isinstance(v, (float, int, np.floating)) and np.isfinite(v) and v > lim:
-            bad.append(f"{key}={v:.1e}>{lim:.0e}")
-    return bad
-
-
 def _params(cfg, path):
     p = cfg.get("params", {})
     if not isinstance(p, dict):
@@ -128,16 +111,6 @@ def _params(cfg, path):
         if isinstance(v, bool) or not isinstance(v, (int, float)):
             raise ConfigError(f"{path}: `params.{k}` must be a number, got {v!r}")
     return {k: float(v) for k, v in p.items()}
-
-
-def _output(args, cfg, path, suffix):
-    out = check_section(cfg, "output", {"file": str}, path=path)
-    target = args.output or out.get("file")
-    if target is None:
-        return os.path.splitext(os.path.basename(path))[0] + suffix
-    if not args.output and not os.path.isabs(target):
-        target = os.path.join(os.path.dirname(os.path.abspath(path)), target)
-    return target
 
 
 def _print_observables(obs, file=None):
@@ -173,14 +146,13 @@ def solve_background_config(cfg, text, args):
             if isinstance(v, (float, int, np.floating, np.integer)):
                 ds.attrs[f"obs_{k}"] = float(v)
         ds.attrs["config"] = text
-        target = _output(args, cfg, path, ".nc")
+        target = _output_path(args, cfg, path, ".nc")
         write_atomic(ds, target)
         print(f"  wrote {target}")
     return 0 if (sol.converged and not bad) else 1
 
 
 def follow_background_config(cfg, text, args):
-    from ..cli._commands import Progress, print_branch_summary
     from ..family import write_atomic
 
     path = args.config
@@ -194,7 +166,7 @@ def follow_background_config(cfg, text, args):
             raise ConfigError(f"{path}: `follow.bounds.{k}` must be [lo, hi]")
         bounds[k] = tuple(None if math.isinf(x) else float(x) for x in v)
     kw = {k: sec[k] for k in ("max_step", "min_step", "tol", "n_max") if k in sec}
-    target = _output(args, cfg, path, "_family.nc")
+    target = _output_path(args, cfg, path, "_family.nc")
     progress = Progress()
     run = dict(stop=sec.get("stop"), step=sec.get("step", 0.1), max_points=sec.get("max_points", 200),
                targets=sec.get("targets", ()), bounds=bounds, checkpoint=target,
