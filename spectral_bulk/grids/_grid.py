@@ -187,6 +187,8 @@ class Grid:
         nf = v.shape[0]
         scale = np.broadcast_to(np.asarray(scale, dtype=float), (nf,))
         floor = np.maximum(np.abs(v).reshape(nf, -1).max(axis=1), scale)[:, None]
+        if self.ndim == 1:
+            return self.axes[0].tail(v, floor[:, 0])[:, None]
         out = np.zeros((nf, self.ndim))
         for k, b in enumerate(self.axes):
             lines = np.moveaxis(v, k + 1, -1).reshape(nf, -1, b.n)

@@ -105,21 +105,28 @@ def _status_docs():
     return "\n".join(lines)
 
 
+def field_weights(problem, u):
+    """``w_f = max(||u_f||_inf, scale_f)``, the per-field size used by all norms."""
+    return np.maximum(np.abs(u.reshape(problem.nfields, -1)).max(axis=1), problem.scales)
+
+
+def _snorm(dx, w):
+    return float((np.abs(dx.reshape(w.size, -1)).max(axis=1) / w).max())
+
+
 def scaled_norm(problem, dx, u):
     """``max_f ||dx_f||_inf / max(||u_f||_inf, scale_f)``."""
-    d = np.abs(problem.split(dx)).max(axis=1)
-    w = np.maximum(np.abs(problem.split(u)).max(axis=1), problem.scales)
-    return float((d / w).max())
+    return _snorm(np.asarray(dx), field_weights(problem, np.asarray(u)))
 
 
-def residual_norm(problem, F, A, u):
+def residual_norm(problem, F, A, u, w=None):
     """Componentwise backward error of the residual (see :class:`NewtonOptions`)."""
-    w = np.maximum(np.abs(problem.split(u)).max(axis=1), problem.scales)
+    w = field_weights(problem, u) if w is None else w
     R = problem.row_sums()  # (na, npts)
     scale = np.einsum("jikp,i,kp->jp", np.abs(A), w, R)
-    F = problem.split(F)
+    F = np.abs(F.reshape(scale.shape))
     with np.errstate(divide="ignore", invalid="ignore"):
-        r = np.where(scale > 0, np.abs(F) / np.where(scale > 0, scale, 1.0), np.abs(F))
+        r = np.where(scale > 0, F / np.where(scale > 0, scale, 1.0), F)
     return float(r.max())
 
 
@@ -295,7 +302,8 @@ def _newton(problem, u, params, opts, first_is_input=False):
                 problem.check(u, params)  # raises, naming the equations that are not finite
             fmt["where"] = "in the residual or its linearisation at iteration " + str(info["njev"])
             return finish(3, u, F=F)
-        info["residual_norms"].append(residual_norm(problem, F, A, u))
+        w_u = field_weights(problem, u)
+        info["residual_norms"].append(residual_norm(problem, F, A, u, w_u))
         try:
             solver = make_solver(problem, A, opts.linear_solver, rtol=opts.linear_rtol)
             dx = -solver.solve(F)
@@ -307,15 +315,15 @@ def _newton(problem, u, params, opts, first_is_input=False):
         if not np.all(np.isfinite(dx)):
             fmt["why"] = "non-finite Newton update"
             return finish(7, u, A=A, F=F)
-        ndx = scaled_norm(problem, dx, u)
+        ndx = _snorm(dx, w_u)
         info["update_norms"].append(ndx)
         if ndx <= tol:
             info["damping"].append(1.0)
             return finish(0, u + dx, A=A, solver=solver)
         if opts.damping and prev is not None:
             ndx_prev, dxbar_prev, lam_prev = prev
-            denom = scaled_norm(problem, dxbar_prev - dx, u) * ndx
-            mu = ndx_prev * scaled_norm(problem, dxbar_prev, u) / denom * lam_prev if denom > 0 else 1.0
+            denom = _snorm(dxbar_prev - dx, w_u) * ndx
+            mu = ndx_prev * _snorm(dxbar_prev, w_u) / denom * lam_prev if denom > 0 else 1.0
             lam = min(1.0, mu)
         reduced = False  # the step may be enlarged once, and only if it was never reduced
         while True:
@@ -339,8 +347,8 @@ def _newton(problem, u, params, opts, first_is_input=False):
                 dxbar = None
                 break
             dxbar = -solver.solve(Ft)
-            theta = scaled_norm(problem, dxbar, u) / ndx
-            dd = scaled_norm(problem, dxbar - (1 - lam) * dx, u)
+            theta = _snorm(dxbar, w_u) / ndx
+            dd = _snorm(dxbar - (1 - lam) * dx, w_u)
             mu_p = 0.5 * ndx * lam**2 / dd if dd > 0 else np.inf
             if theta >= 1 - lam / 4:
                 lam = min(mu_p, lam / 2)
@@ -356,9 +364,9 @@ def _newton(problem, u, params, opts, first_is_input=False):
         u = trial
         if At is not None and np.all(np.isfinite(At)):
             pending = (Ft, At)
-        if dxbar is not None and lam == 1.0 and scaled_norm(problem, dxbar, u) <= tol:
+        if dxbar is not None and lam == 1.0 and _snorm(dxbar, field_weights(problem, u)) <= tol:
             # the simplified-Newton correction is already below tolerance
-            info["update_norms"].append(scaled_norm(problem, dxbar, u))
+            info["update_norms"].append(_snorm(dxbar, field_weights(problem, u)))
             if pending is not None:
                 return finish(0, u + dxbar, A=pending[1], solver=solver)
             return finish(0, u + dxbar, A=A, solver=solver)
