@@ -20,7 +20,7 @@ import numpy as np
 import pytest
 
 from spectral_bulk.backgrounds import AxionBrane, BlackBrane, QLatticeBrane
-from spectral_bulk.exceptions import ProblemDefinitionError, ResolutionWarning
+from spectral_bulk.exceptions import ConvergenceWarning, ProblemDefinitionError, ResolutionWarning
 from spectral_bulk.models import BulkModel, QLatticeModel, builtin
 
 HERE = os.path.dirname(os.path.abspath(__file__))
@@ -243,5 +243,6 @@ def test_far_guess_terminates_and_homotopy_reaches_the_point(mass2):
     # the public solve falls back to continuation from the trivial background; at k/T = 30
     # the scalar lives within z ~ 1/k of the boundary and the boundary Taylor coefficients of
     # the affine grid lose accuracy (the certificate says so: ~5e-8 rather than ~1e-9)
-    sol = bg.solve(**params)
-    assert sol.converged and sol.observables["ward_trace"] < 1e-7
+    with pytest.warns(ConvergenceWarning, match="observable certificate failed"):
+        sol = bg.solve(**params)
+    assert sol.converged and not sol.certified and sol.observables["ward_trace"] < 1e-7

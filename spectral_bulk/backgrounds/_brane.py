@@ -54,11 +54,26 @@ class BackgroundSolution(SolveResult):
 
     @classmethod
     def wrap(cls, res, background):
+        from ..holography import certificate_failures
+
         out = object.__new__(cls)
         out.__dict__.update(res.__dict__)
         out.background = background
         out.observables = background.observables(res)
+        out.certificate_failures = certificate_failures(background, out.observables)
+        out.certified = bool(res.converged and not out.certificate_failures)
         return out
+
+
+def _warn_uncertified(bg, sol, where):
+    """One warning naming what failed: the Newton solve or an observable certificate."""
+    if not sol.converged:
+        emit_user_level_warning(f"{type(bg).__name__} at {where}: {sol.message}", ConvergenceWarning)
+    elif not sol.certified:
+        emit_user_level_warning(
+            f"{type(bg).__name__} at {where}: observable certificate failed "
+            f"({', '.join(sol.certificate_failures)}); raise the resolution (n) or check the model",
+            ConvergenceWarning)
 
 
 class Brane:
@@ -106,6 +121,9 @@ class Brane:
                 "by the brane backgrounds so far"
             )
         self.n, self.n_max, self.tol = int(n), int(n_max), float(tol)
+        # the stress tensor needs third boundary derivatives: resolve the fields until their
+        # Chebyshev coefficients reach the rounding plateau, not just the Newton tolerance
+        self.tail_tol = min(self.tol, 1e-13)
         self.T = self.d / (4 * math.pi)
         if gauge not in ("tortoise", "deturck"):
             raise ProblemDefinitionError(f"`gauge` must be 'tortoise' or 'deturck', got {gauge!r}")
@@ -289,9 +307,10 @@ class Brane:
         Returns
         -------
         BraneSolution
-            With ``.observables``; ``converged`` False (and a warning) if the
-            certificate fails.  Large deformations are reached by continuation
-            from the guess when a direct Newton solve does not converge.
+            With ``.observables`` and ``.certified`` (Newton converged *and* every
+            observable certificate within ``holography.BRANE_CERTIFICATE``); a
+            warning says which part failed.  Large deformations are reached by
+            continuation from the guess when a direct Newton solve does not converge.
         """
         target = self.default_params()
         unknown = set(params) - set(target)
@@ -302,28 +321,27 @@ class Brane:
             )
         target.update({k: float(v) for k, v in params.items()})
         start = guess if guess is not None else self._last
-        n = self.n if start is None else max(self.n, start.grid.shape[0])
+        n = self.n if start is None else min(self.n_max, max(self.n, start.grid.shape[0]))
         pr = self.problem(n)
         g = start if start is not None else self._trivial_guess(target)
         res = self._newton(pr, g, target)
         if res.status not in (0, 5):
             res = self._homotopy(start, target) or res
-        while res.status == 5 and pr.grid.shape[0] < self.n_max:
-            n = min(self.n_max, int(math.ceil(pr.grid.shape[0] * 1.5)))
-            pr = self.problem(n)
-            res = self._newton(pr, res, target)
+        while res.status == 5 and res.grid.shape[0] < self.n_max:
+            n = min(self.n_max, int(math.ceil(res.grid.shape[0] * 1.5)))
+            res = self._newton(self.problem(n), res, target)
         sol = BackgroundSolution.wrap(res, self)
         if res.converged:
             self._last = res
-        else:
-            emit_user_level_warning(f"{type(self).__name__} at {target}: {res.message}", ConvergenceWarning)
+        _warn_uncertified(self, sol, target)
         return sol
 
     def _newton(self, pr, guess, params):
         from ..newton._newton import _newton, initial_state
 
         u0 = initial_state(pr, guess)
-        return _newton(pr, u0, params, NewtonOptions(tol=self.tol, max_iter=40).validated())
+        return _newton(pr, u0, params, NewtonOptions(tol=self.tol, tail_tol=self.tail_tol,
+                                                     max_iter=40).validated())
 
     def _homotopy(self, start, target):
         """Continue from the start (or the trivial background) to the target, one parameter at a time."""
@@ -390,6 +408,7 @@ class Brane:
         bounds.update(kwargs.pop("bounds", {}) or {})
         pr = self.problem(start.grid.shape[0])
         kwargs.setdefault("tol", self.tol)
+        kwargs.setdefault("tail_tol", self.tail_tol)
         kwargs.setdefault("n_max", self.n_max)
         attrs = dict(attrs or {})
         attrs.update({"background": type(self).__name__, "model": self.model.name,

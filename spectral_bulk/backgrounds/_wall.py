@@ -40,7 +40,7 @@ from ..grids import Chebyshev, ExponentialMap
 from ..gravity import MatterContent, Series, coordinate_series, einstein_deturck
 from ..models import BulkModel, QLatticeModel, critical_points
 from ..newton import NewtonOptions, Problem, SolveResult
-from ._brane import BackgroundSolution
+from ._brane import BackgroundSolution, _warn_uncertified
 
 __all__ = ["QLatticeWall", "DomainWall", "WallSolution"]
 
@@ -169,7 +169,7 @@ class QLatticeWall:
         from ..newton._newton import _newton, initial_state
 
         start = guess if guess is not None else self._last
-        n = self.n if start is None else max(self.n, start.grid.shape[0])
+        n = self.n if start is None else min(self.n_max, max(self.n, start.grid.shape[0]))
         pr = self.problem(n)
         opts = NewtonOptions(tol=self.tol, max_iter=15).validated()
         if self.coupling == "loglam" and not lam > 0:
@@ -181,6 +181,9 @@ class QLatticeWall:
             res = _newton(pr, initial_state(pr, g), self._pv(lam), opts)
         if res is None or res.status not in (0, 5):
             res = self._homotopy(start, lam) or res
+        if res is None:  # no direct attempt and the continuation did not get there
+            g = start if start is not None else self._guess(lam)
+            res = _newton(pr, initial_state(pr, g), self._pv(lam), opts)
         while res.status == 5 and res.grid.shape[0] < self.n_max:
             n = min(self.n_max, int(math.ceil(res.grid.shape[0] * 1.5)))
             pr = self.problem(n)
@@ -188,8 +191,7 @@ class QLatticeWall:
         sol = WallSolution.wrap(res, self)
         if res.converged:
             self._last = res
-        else:
-            emit_user_level_warning(f"QLatticeWall at lam={lam}: {res.message}", ConvergenceWarning)
+        _warn_uncertified(self, sol, f"lam={lam}")
         return sol
 
     def _homotopy(self, start, lam):
@@ -475,8 +477,7 @@ class DomainWall:
                 break
         res.regular, res.ir = True, ir
         sol = WallSolution.wrap(res, self)
-        if not res.converged:
-            emit_user_level_warning(f"DomainWall at lam={lam}: {res.message}", ConvergenceWarning)
+        _warn_uncertified(self, sol, f"lam={lam}")
         return sol
 
     def _ramp_guess(self, lam, ir, Z):

@@ -65,7 +65,19 @@ def _exp_taylor(a):
 
 
 def fixed_points(model, k=1.0):
-    """AdS4 critical points of V and AdS3 x R scaling points of a Q-lattice model."""
+    """AdS4 critical points of V and AdS3 x R scaling points of a Q-lattice model.
+
+    Computed once per model (cached on the model object).
+    """
+    cached = getattr(model, "_fixed_points_cache", None)
+    if cached is not None:
+        return cached
+    out = _fixed_points(model)
+    model._fixed_points_cache = out
+    return out
+
+
+def _fixed_points(model):
     from scipy.optimize import brentq
 
     from ..gravity import derivative
