@@ -217,16 +217,13 @@ class Brane:
         g, ref = self._metric(z, fs)
         return einstein_deturck(g, ref, self.model, self._matter(z, fs, p), radial=1, dim=self.d + 1)
 
-    def _params_dict(self, p):
-        return {k: p[k] for k in p.keys()}
-
     def _equations(self, c, f, p):
         z = np.asarray(c.z)
         zz = np.where((z <= 0) | (z >= 1), 0.5, z)  # ends carry boundary rows, not these
         batch = np.broadcast_shapes(np.shape(f.A), zz.shape)
         zs = coordinate_series(np.broadcast_to(zz, batch))
         fs = {name: _field_series(f, name) for name in self.fields}
-        out = self.evaluate(zs, fs, self._params_dict(p))
+        out = self.evaluate(zs, fs, p)
         E = out["E"]
         rows = [E[(0, 0)].coefficient(0)]
         if self.gauge == "deturck":
@@ -242,7 +239,7 @@ class Brane:
         batch = np.shape(f.A)
         zs = coordinate_series(np.ones(batch))
         fs = {name: _field_series(f, name) for name in self.fields}
-        out = self.evaluate(zs, fs, self._params_dict(p))
+        out = self.evaluate(zs, fs, p)
         E = out["E"]
         tt = E[(0, 0)]
         # tortoise gauge: the constant term of E^t_t (= that of E^z_z, the constraint);
