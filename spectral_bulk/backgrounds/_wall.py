@@ -461,7 +461,8 @@ class DomainWall:
         pr, ir = self.problem(lam)
         if pr is None:
             out = object.__new__(WallSolution)
-            out.__dict__.update(dict(regular=False, converged=False, status=-1, observables={},
+            out.__dict__.update(dict(regular=False, converged=False, certified=False, status=-1,
+                                     observables={}, certificate_failures=["singular flow"],
                                      message=f"no critical point of V in the direction of the source "
                                              f"(lam = {lam}): the homogeneous flow is singular in the IR",
                                      params={"lam": lam}))

@@ -1,0 +1,74 @@
+"""Background configs from the command line: solve, follow, show, exit codes, bad input."""
+
+import os
+import textwrap
+
+import pytest
+import xarray as xr
+
+from spectral_bulk.cli import main
+
+ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+
+
+def run(argv, capsys):
+    code = main(argv)
+    out = capsys.readouterr()
+    return code, out.out, out.err
+
+
+def test_solve_qlattice_brane_config(tmp_path, capsys):
+    out = tmp_path / "qb.nc"
+    code, stdout, _ = run(["solve", os.path.join(ROOT, "configs", "qlattice_brane.toml"), "-o", str(out)],
+                          capsys)
+    assert code == 0
+    assert "ward_trace" in stdout and "converged" in stdout
+    with xr.open_dataset(out) as ds:
+        assert ds.attrs["converged"] == 1 and "obs_s" in ds.attrs and "[background]" in ds.attrs["config"]
+
+
+def test_follow_wall_config_and_show(tmp_path, capsys):
+    cfg = tmp_path / "wall.toml"
+    cfg.write_text(textwrap.dedent("""
+        [background]
+        kind = "qlattice_wall"
+        coupling = "loglam"
+        [model]
+        builtin = "quartic_well"
+        [params]
+        lam = 0.5
+        [follow]
+        param = "loglam"
+        stop = 3.0
+        step = 0.3
+    """))
+    out = tmp_path / "fam.nc"
+    code, stdout, stderr = run(["follow", str(cfg), "-o", str(out)], capsys)
+    assert code == 0, stderr
+    assert "reached the bound" in stdout
+    code, stdout, _ = run(["show", str(out)], capsys)
+    assert code == 0 and "certificate: all points pass" in stdout and "worst constraint" in stdout
+
+
+def test_singular_homogeneous_flow_exits_nonzero(tmp_path, capsys):
+    cfg = tmp_path / "dw.toml"
+    cfg.write_text('[background]\nkind = "domain_wall"\n[model]\nbuiltin = "mass2"\n[params]\nlam = 1.0\n')
+    code, stdout, _ = run(["solve", str(cfg), "-o", str(tmp_path / "dw.nc")], capsys)
+    assert code == 1 and "singular" in stdout
+
+
+@pytest.mark.parametrize("text, expected", [
+    ('[background]\nkind = "black_hole"\n[model]\nbuiltin = "mass2"\n', "`background.kind`"),
+    ('[background]\nkind = "qlattice_brane"\n[model]\nbuiltin = "nothing"\n', "`model.builtin`"),
+    ('[background]\nkind = "qlattice_brane"\n[model]\nbuiltin = "mass2"\n[params]\nlamda = 1.0\n',
+     "unknown parameter"),
+    ('[background]\nkind = "qlattice_brane"\nresolution = 3\n[model]\nbuiltin = "mass2"\n',
+     "unknown key `background.resolution`"),
+])
+def test_bad_background_config_is_one_line(tmp_path, capsys, text, expected):
+    cfg = tmp_path / "bad.toml"
+    cfg.write_text(text)
+    code, _, stderr = run(["solve", str(cfg), "-o", str(tmp_path / "x.nc")], capsys)
+    assert code == 2
+    lines = [ln for ln in stderr.splitlines() if ln.strip()]
+    assert len(lines) == 1 and expected in lines[0] and "Traceback" not in stderr
