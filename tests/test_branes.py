@@ -246,3 +246,13 @@ def test_far_guess_terminates_and_homotopy_reaches_the_point(mass2):
     with pytest.warns(ConvergenceWarning, match="observable certificate failed"):
         sol = bg.solve(**params)
     assert sol.converged and not sol.certified and sol.observables["ward_trace"] < 1e-7
+
+
+def test_models_outside_the_renormalisation_coverage_are_not_reported_as_certified():
+    # m^2 = 0 (Delta = 3): the brane solves, s is reported, the stress tensor is not
+    model = QLatticeModel(lambda r: -6 + 0 * r, lambda r: r**2)
+    bg = QLatticeBrane(model, n=20)
+    with pytest.warns(ConvergenceWarning, match="renormalisation not implemented"):
+        sol = bg.solve(lam=0.5, k=1.0)
+    assert sol.converged and not sol.certified
+    assert np.isfinite(sol.observables["s"]) and np.isnan(sol.observables["energy"])

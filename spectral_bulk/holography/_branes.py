@@ -45,7 +45,7 @@ def certificate_failures(bg, obs):
     from ._walls import WALL_CERTIFICATE
 
     limits = WALL_CERTIFICATE if type(bg).__name__.endswith("Wall") else BRANE_CERTIFICATE
-    bad = []
+    bad = [] if obs.get("renormalised", 1) else ["renormalisation not implemented for this model"]
     for key, lim in limits.items():
         v = obs.get(key, np.nan)
         if isinstance(v, (float, int, np.floating)) and np.isfinite(v) and v > lim:
@@ -292,8 +292,41 @@ def _gauge_checks(bg, sol):
     return deturck, constraint
 
 
+def renormalisation_available(bg):
+    """True where the renormalised stress tensor and vevs are implemented (d = 3, m^2 = -2)."""
+    return bg.d == 3 and all(abs(sc.m2 + 2) < 1e-9 for sc in bg.model.uv)
+
+
+def _horizon_only(bg, sol):
+    """Observables that need no renormalisation, for models outside its coverage."""
+    T = bg.T
+    Bh, Ch = sol.fields["B"][-1], sol.fields["C"][-1]
+    Ah, Sh = sol.fields["A"][-1], sol.fields["S" if bg.gauge == "deturck" else "A"][-1]
+    deturck, constraint = _gauge_checks(bg, sol)
+    nan = float("nan")
+    obs = {"T": 1.0, "s": 4 * math.pi * math.sqrt(Bh * Ch) / T**2, "f": nan, "energy": nan,
+           "p_x": nan, "p_y": nan, "f_action": nan, "renormalised": 0}
+    for name in bg.source_names():
+        obs["source" + ("" if name == "lam" else name[3:])] = float(sol.params[name])
+        obs["vev" + ("" if name == "lam" else name[3:])] = nan
+    for name in bg.scalar_fields:
+        obs["rho_h" + ("" if name == "psi" else name[3:])] = float(sol.fields[name][-1])
+    obs.update({"residual": float(sol.residual), "tail": float(max(sol.tail.values())),
+                "ward_trace": nan, "thermo": nan, "py_f": nan, "action": nan, "deturck": deturck,
+                "constraint": constraint, "temperature": float(abs(math.sqrt(Ah / Sh) - 1))})
+    return obs
+
+
 def brane_observables(bg, sol):
-    """Dimensionless observables (units of T) and certificate of a brane solution."""
+    """Dimensionless observables (units of T) and certificate of a brane solution.
+
+    The renormalised stress tensor, vevs and free energy are implemented for d = 3 with
+    scalars of m^2 = -2 (Delta = 2 or 1); for other models only the horizon quantities
+    (``s``, ``rho_h``) and the gauge certificate are returned, the rest is NaN and
+    ``renormalised = 0`` (which fails the certificate instead of reporting wrong numbers).
+    """
+    if not renormalisation_available(bg):
+        return _horizon_only(bg, sol)
     T = bg.T
     st = _stress_tensor(bg, sol)
     Bh, Ch = sol.fields["B"][-1], sol.fields["C"][-1]
@@ -306,6 +339,7 @@ def brane_observables(bg, sol):
     scale = max(abs(st["energy"]), T * s, abs(st["p_x"]), abs(st["p_y"]), abs(f_thermo))
     obs = {
         "T": 1.0,
+        "renormalised": 1,
         "s": s / T**2,
         "f": f_thermo / T**3,
         "energy": st["energy"] / T**3,
