@@ -32,7 +32,14 @@ __all__ = ["Geometry", "ScalarField", "tensor_sum"]
 
 
 def _is_zero(x):
-    return x is None or (not isinstance(x, Series) and np.ndim(x) == 0 and x == 0)
+    # hot path of the sparse tensor bookkeeping: avoid numpy calls for the common types
+    if x is None:
+        return True
+    if isinstance(x, Series):
+        return False
+    if isinstance(x, (int, float)):
+        return x == 0
+    return np.ndim(x) == 0 and x == 0
 
 
 def tensor_sum(terms):
@@ -158,22 +165,36 @@ class Geometry:
     def gamma(self, l, m, n):
         return self.christoffel.get((l, m, n) if m <= n else (l, n, m), 0)
 
+    def _gamma_rows(self):
+        """For each lower index n: the non-zero ``Gamma^l_{n s}`` as (l, s, value)."""
+        rows = {n: [] for n in range(self.dim)}
+        for (l, m, n), v in self.christoffel.items():
+            rows[m].append((l, n, v))
+            if m != n:
+                rows[n].append((l, m, v))
+        return rows
+
     @property
     def ricci(self):
         """``R_{mu nu}`` for ``mu <= nu`` (dict)."""
         if self._ricci is None:
             D, r = self.dim, self.radial
-            trace = {s: tensor_sum(self.gamma(l, l, s) for l in range(D)) for s in range(D)}
+            rows = self._gamma_rows()
+            trace = {}
+            for s_ in range(D):
+                trace[s_] = tensor_sum(v for (l, s2, v) in rows[s_] if l == s2)
             ric = {}
             for m, n in itertools.combinations_with_replacement(range(D), 2):
                 terms = [_deriv(self.gamma(r, m, n))]
                 if n == r and not _is_zero(trace[m]):
                     terms.append(-1 * _deriv(trace[m]))
-                terms += [_mul(trace[s], self.gamma(s, m, n)) for s in range(D)]
-                for l, s in itertools.product(range(D), repeat=2):
-                    t = _mul(self.gamma(l, n, s), self.gamma(s, m, l))
-                    if not _is_zero(t):
-                        terms.append(-1 * t)
+                terms += [_mul(trace[s_], self.gamma(s_, m, n)) for s_ in range(D)
+                          if not _is_zero(trace[s_])]
+                # - Gamma^l_{n s} Gamma^s_{m l}, over the non-zero first factors only
+                for l, s_, v in rows[n]:
+                    w = self.gamma(s_, m, l)
+                    if not _is_zero(w):
+                        terms.append(-1 * (v * w))
                 val = tensor_sum(terms)
                 if not _is_zero(val):
                     ric[(m, n)] = val

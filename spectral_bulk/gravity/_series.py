@@ -36,6 +36,11 @@ def _as_array(x):
     return np.asarray(x)
 
 
+def _bshape(a, b):
+    # the two batch shapes are almost always equal: skip numpy's general routine then
+    return a if a == b else np.broadcast_shapes(a, b)
+
+
 class Series:
     """Truncated Laurent series ``sum_k c[k] d^(val + k) + O(d^(val + len(c)))``.
 
@@ -74,7 +79,7 @@ class Series:
         """Drop leading coefficients that are exactly zero everywhere (raise the valuation)."""
         c, v = self.c, self.val
         k = 0
-        while k < c.shape[0] - 1 and not np.any(c[k]):
+        while k < c.shape[0] - 1 and not c[k].any():
             k += 1
         if k:
             return Series(c[k:], v + k)
@@ -141,8 +146,8 @@ class Series:
         v = min(self.val, other.val)
         p = min(self.prec, other.prec)
         if p <= v:
-            return Series(np.zeros((0,) + np.broadcast_shapes(self.batch_shape, other.batch_shape)), p)
-        shape = (p - v,) + np.broadcast_shapes(self.batch_shape, other.batch_shape)
+            return Series(np.zeros((0,) + _bshape(self.batch_shape, other.batch_shape)), p)
+        shape = (p - v,) + _bshape(self.batch_shape, other.batch_shape)
         c = np.zeros(shape, dtype=np.result_type(self.c, other.c))
         for s in (self, other):
             lo, hi = s.val - v, min(s.prec, p) - v
@@ -165,7 +170,7 @@ class Series:
         v = self.val + other.val
         p = min(self.val + other.prec, other.val + self.prec)
         m = p - v
-        shape = (max(m, 0),) + np.broadcast_shapes(self.batch_shape, other.batch_shape)
+        shape = (max(m, 0),) + _bshape(self.batch_shape, other.batch_shape)
         c = np.zeros(shape, dtype=np.result_type(self.c, other.c))
         for i in range(min(m, self.c.shape[0])):
             j = min(m - i, other.c.shape[0])
