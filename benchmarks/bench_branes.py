@@ -68,44 +68,26 @@ not fatal), 2 otherwise.
 """
 
 import os
+import sys
 
-for _var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS",
-             "VECLIB_MAXIMUM_THREADS", "BLIS_NUM_THREADS"):
-    os.environ[_var] = "1"
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+import _common  # noqa: E402  (first: it pins BLAS to one thread before numpy is imported)
+from _common import log, quiet, ratio, summary  # noqa: E402
 
-import argparse  # noqa: E402
-import contextlib  # noqa: E402
-import datetime  # noqa: E402
-import functools  # noqa: E402
-import gc  # noqa: E402
 import importlib.util  # noqa: E402
 import json  # noqa: E402
 import math  # noqa: E402
-import platform  # noqa: E402
-import sys  # noqa: E402
 import time  # noqa: E402
-import warnings  # noqa: E402
-from collections import defaultdict  # noqa: E402
 
 import numpy as np  # noqa: E402
-import scipy  # noqa: E402
 from scipy.integrate import solve_bvp  # noqa: E402
 
-try:  # optional
-    import threadpoolctl  # noqa: E402
-except ImportError:  # pragma: no cover
-    threadpoolctl = None
-
-import spectral_bulk  # noqa: E402
 from spectral_bulk.backgrounds import QLatticeBrane  # noqa: E402
 from spectral_bulk.backgrounds._brane import Brane  # noqa: E402
 from spectral_bulk.models import builtin  # noqa: E402
-from spectral_bulk.newton import Problem  # noqa: E402
-from spectral_bulk.newton import _linalg, _newton  # noqa: E402
 
-HERE = os.path.dirname(os.path.abspath(__file__))
-ROOT = os.path.dirname(HERE)
-DEFAULT_OUTPUT = os.path.join(HERE, "results", "branes.json")
+ROOT = _common.REPO_ROOT
+DEFAULT_OUTPUT = _common.default_output("branes.json")
 TARGET_RTOL = 1e-10
 TARGET_RATIO = 20.0
 LAM_T, K_T = 1.0, 1.0
@@ -121,10 +103,6 @@ def _load_reference():
 
 
 REF = _load_reference()
-
-
-def log(msg=""):
-    print(msg, flush=True)
 
 
 # =============================================================================
@@ -243,108 +221,15 @@ def bulk_parameters(lam_T, k_T):
 
 
 # =============================================================================
-# timing helpers
+# instrumentation
 # =============================================================================
-def interleaved(funcs, rounds):
-    """Time callables name -> fun in rounds A B C ...; one call per sample, gc off inside."""
-    out = {name: [] for name in funcs}
-    for _ in range(rounds):
-        for name, fun in funcs.items():
-            gc.collect()
-            gc.disable()
-            try:
-                t0 = time.perf_counter()
-                fun()
-                dt = time.perf_counter() - t0
-            finally:
-                gc.enable()
-            out[name].append(dt)
-    return out
+class Clock(_common.Clock):
+    """Exclusive timers on the observables and on the engine's pieces."""
 
-
-def summary(samples):
-    s = np.asarray(samples, dtype=float)
-    q25, med, q75 = np.percentile(s, [25, 50, 75])
-    return {"median": float(med), "q25": float(q25), "q75": float(q75), "min": float(s.min()),
-            "max": float(s.max()), "n": int(s.size)}
-
-
-def ratio(num, den):
-    a, b = np.asarray(num, dtype=float), np.asarray(den, dtype=float)
-    q25, q75 = np.percentile(a / b, [25, 75])
-    return {"ratio": float(np.median(a) / np.median(b)), "q25": float(q25), "q75": float(q75)}
-
-
-def quiet(fun, *args, **kwargs):
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        return fun(*args, **kwargs)
-
-
-class Clock:
-    """Exclusive wall time per category for nested wrapped calls."""
-
-    def __init__(self):
-        self.excl = defaultdict(float)
-        self.calls = defaultdict(int)
-        self._stack = []
-        self._patches = []
-        self.missing = []
-
-    def reset(self):
-        self.excl.clear()
-        self.calls.clear()
-        self._stack = []
-
-    def wrap(self, cat, fn):
-        clock = self
-
-        @functools.wraps(fn)
-        def wrapper(*args, **kwargs):
-            clock._stack.append(0.0)
-            t0 = time.perf_counter()
-            try:
-                return fn(*args, **kwargs)
-            finally:
-                dt = time.perf_counter() - t0
-                child = clock._stack.pop()
-                clock.excl[cat] += dt - child
-                clock.calls[cat] += 1
-                if clock._stack:
-                    clock._stack[-1] += dt
-        return wrapper
-
-    def _patch(self, owner, attr, wrapper_for):
-        orig = owner.__dict__.get(attr) if isinstance(owner, type) else getattr(owner, attr, None)
-        if orig is None:
-            self.missing.append(f"{getattr(owner, '__name__', owner)}.{attr}")
-            return
-        self._patches.append((owner, attr, orig))
-        setattr(owner, attr, wrapper_for(orig))
-
-    @contextlib.contextmanager
-    def installed(self):
-        cache = {}
-
-        def same(cat):  # one wrapper per function object, shared by every module that imported it
-            return lambda fn: cache.setdefault(id(fn), self.wrap(cat, fn))
-
-        try:
-            self._patch(Brane, "family_observables", same("observables"))
-            self._patch(Brane, "observables", same("observables"))
-            for attr in ("linearize", "param_derivative", "residual"):
-                self._patch(Problem, attr, same("pointwise"))
-            for attr in ("__init__", "solve", "slogdet"):
-                self._patch(_linalg.DenseSolver, attr, same("linear_algebra"))
-            for mod in (_linalg, _newton):
-                if hasattr(mod, "assemble_dense"):
-                    self._patch(mod, "assemble_dense", same("linear_algebra"))
-            self._patch(_linalg, "_bordered_dense", same("linear_algebra"))
-            yield self
-        finally:
-            while self._patches:
-                owner, attr, orig = self._patches.pop()
-                setattr(owner, attr, orig)
+    def install(self):
+        self.patch(Brane, "family_observables", self.timer("observables"))
+        self.patch(Brane, "observables", self.timer("observables"))
+        self.time_newton_core()
 
 
 # =============================================================================
@@ -564,7 +449,7 @@ def part_a(quick, rounds):
         funcs["solve_bvp warm (from 0.9)"] = lambda: quiet(pw.solve, warm_tol, start=sol9, jac=tuned["jac"])
     for fun in funcs.values():  # warm-up
         fun()
-    samples = interleaved(funcs, rounds)
+    samples = {name: t["samples"] for name, t in _common.interleaved(funcs, rounds).items()}
     timing = {name: summary(s) for name, s in samples.items()}
     ratios = {}
     base = samples.get("spectral (certified n)")
@@ -625,16 +510,12 @@ FAMILY = dict(start={"lam": 0.05, "k": 1.0}, step=0.05, max_step=0.05, stop=20.0
 
 def run_family():
     bg = QLatticeBrane(builtin("mass2"))
-    gc.collect()
-    gc.disable()
-    try:
+    with _common.gc_paused():
         t0 = time.perf_counter()
         c0 = time.process_time()
         br = quiet(bg.follow, "lam", **FAMILY)
         wall = time.perf_counter() - t0
         cpu = time.process_time() - c0
-    finally:
-        gc.enable()
     return bg, br, wall, cpu
 
 
@@ -690,7 +571,7 @@ def part_b(quick, rounds):
     out["ratio_observables_to_solving"] = ratio([p["observables_percent"] for p in instr],
                                                 [p["solving_percent"] for p in instr])
     out["rounds"] = rounds
-    out["missing_instrumentation"] = clock.missing
+    out["missing_instrumentation"] = sorted(clock.missing)
 
     # ---- verification
     certs = {k: float(np.nanmax(ds[k].values)) for k in ds.data_vars if k.startswith("cert_")}
@@ -721,43 +602,6 @@ def part_b(quick, rounds):
 
 
 # =============================================================================
-# machine info
-# =============================================================================
-def machine_info():
-    cpu = platform.processor() or ""
-    with contextlib.suppress(OSError):
-        with open("/proc/cpuinfo") as fh:
-            for line in fh:
-                if line.startswith("model name"):
-                    cpu = line.split(":", 1)[1].strip()
-                    break
-    info = {"platform": platform.platform(), "machine": platform.machine(), "cpu": cpu,
-            "cpu_count": os.cpu_count(), "python": sys.version.split()[0], "numpy": np.__version__,
-            "scipy": scipy.__version__, "spectral_bulk": spectral_bulk.__version__,
-            "thread_env": {k: os.environ.get(k) for k in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS",
-                                                          "MKL_NUM_THREADS")}}
-    with contextlib.suppress(OSError):
-        info["loadavg_at_start"] = os.getloadavg()
-    if threadpoolctl is not None:
-        info["threadpoolctl"] = [{"api": d.get("user_api"), "threads": d.get("num_threads")}
-                                 for d in threadpoolctl.threadpool_info()]
-    return info
-
-
-def package_state():
-    import subprocess
-
-    out = {}
-    with contextlib.suppress(Exception):
-        out["commit"] = subprocess.run(["git", "-C", ROOT, "rev-parse", "--short", "HEAD"], capture_output=True,
-                                       text=True, timeout=10).stdout.strip()
-        st = subprocess.run(["git", "--no-optional-locks", "-C", ROOT, "status", "--porcelain", "--",
-                             "spectral_bulk"], capture_output=True, text=True, timeout=10).stdout
-        out["uncommitted_package_files"] = [line[3:] for line in st.splitlines()]
-    return out
-
-
-# =============================================================================
 # report
 # =============================================================================
 def ms(x):
@@ -766,10 +610,8 @@ def ms(x):
 
 def report(a, b):
     log()
-    log("=" * 100)
-    log("a. One Q-lattice brane solve, V=-6-rho^2, Phi=rho^2, standard, (lam/T, k/T) = (1, 1), "
-        "target 1e-10 relative in s/T^2")
-    log("=" * 100)
+    _common.banner("a. One Q-lattice brane solve, V=-6-rho^2, Phi=rho^2, standard, (lam/T, k/T) = (1, 1), "
+                   "target 1e-10 relative in s/T^2")
     t = a["truth"]
     log(f"truth s/T^2 = {t['s']:.15f}  [n=48 vs n=64 {t['n48_vs_n64_rel']:.1e}; shooting rel "
         f"{t['shooting_vs_truth_rel']:.1e} (its estimate {t['shooting_s_err_estimate'] / t['s']:.1e}); "
@@ -781,8 +623,8 @@ def report(a, b):
         f"(converged at tol 1e-10): {a['n_certified']}")
     log(f"solve_bvp tuned: {a['tuned_config']}; conservative: {a['conservative_config']}")
     log()
-    log(f"{'configuration':40s} {'median ms':>10s} {'IQR ms':>19s} {'rel err s':>10s} {'verified':>9s}")
-    log("-" * 92)
+    _common.table_header(f"{'configuration':40s} {'median ms':>10s} {'IQR ms':>19s} {'rel err s':>10s} "
+                         f"{'verified':>9s}")
     ver = a["verification"]
     errs = {"spectral (certified n)": ver.get("spectral_certified"),
             "spectral, new object per call": ver.get("spectral_certified"),
@@ -796,7 +638,7 @@ def report(a, b):
             f"{v.get('rel_err_s', float('nan')):10.1e} {'yes' if v.get('passed') else 'NO':>9s}")
     log()
     for name, r in a["ratios"].items():
-        log(f"ratio {name:58s} {r['ratio']:7.3f}  [IQR of per-round ratios {r['q25']:.3f}, {r['q75']:.3f}]")
+        log(f"ratio {name:58s} {_common.fmt_ratio(r, 7, 'IQR of per-round ratios ')}")
     log(f"issue target solve_bvp/spectral >= {TARGET_RATIO:g}: {'MET' if a['target_met'] else 'NOT MET'} "
         f"(headline ratio {a['headline_ratio']:.3f}, medians over {a['rounds']} interleaved rounds)")
     for k in ("bvp_tuned", "bvp_conservative"):
@@ -813,9 +655,7 @@ def report(a, b):
         f"linear algebra {bd['linear_algebra']:.1f}%, observables+certificate "
         f"{bd['observables_and_certificate']:.0f}%, rest {bd['rest']:.0f}%")
     log()
-    log("=" * 100)
-    log("b. Family of 100 points in lam/T at k/T = 1 (QLatticeBrane.follow with observables)")
-    log("=" * 100)
+    _common.banner("b. Family of 100 points in lam/T at k/T = 1 (QLatticeBrane.follow with observables)")
     tb = b["timing"]
     log(f"{b['points']} points, lam/T {b['lam_range'][0]:.3f} .. {b['lam_range'][1]:.4f}, grid sizes "
         f"{b['grid_sizes']}, status {b['status']} ({b['message']})")
@@ -842,16 +682,13 @@ def report(a, b):
 
 
 def main(argv=None):
-    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
-    ap.add_argument("--quick", action="store_true", help="smaller scans, fewer rounds (about a minute)")
-    ap.add_argument("--rounds", type=int, default=None, help="rounds for part a (default 10 quick, 40 full)")
-    ap.add_argument("--output", default=DEFAULT_OUTPUT)
+    ap = _common.argument_parser(__doc__, DEFAULT_OUTPUT, "smaller scans, fewer rounds (about a minute)",
+                                 rounds_help="rounds for part a (default 10 quick, 40 full)")
     args = ap.parse_args(argv)
     rounds_a = args.rounds or (10 if args.quick else 40)
     rounds_b = 1 if args.quick else 3
-    limiter = threadpoolctl.threadpool_limits(limits=1) if threadpoolctl is not None else contextlib.nullcontext()
     t0 = time.perf_counter()
-    with limiter:
+    with _common.one_blas_thread():
         log("part a: verification and tuning ...")
         a = part_a(args.quick, rounds_a)
         log("part b: family runs (plain / instrumented, alternating) ...")
@@ -862,15 +699,12 @@ def main(argv=None):
     log()
     log(f"verification: part a {'passed' if a['passed'] else 'FAILED'}, part b "
         f"{'passed' if b['passed'] else 'FAILED'}; total {total:.1f} s")
-    out = {"benchmark": "branes", "timestamp": datetime.datetime.now(datetime.UTC).isoformat(timespec="seconds"),
+    out = {"benchmark": "branes", "timestamp": _common.utc_timestamp(),
            "quick": bool(args.quick), "total_wall_s": total, "verification_passed": bool(passed),
            "targets": {"solve_bvp_over_spectral": TARGET_RATIO, "rel_accuracy_s": TARGET_RTOL},
-           "machine": machine_info(), "package_state": package_state(), "single_solve": a, "family": b}
-    os.makedirs(os.path.dirname(os.path.abspath(args.output)), exist_ok=True)
-    tmp = args.output + ".tmp"
-    with open(tmp, "w") as fh:
-        json.dump(out, fh, indent=2, default=lambda o: o.item() if hasattr(o, "item") else str(o))
-    os.replace(tmp, args.output)
+           "machine": _common.machine_info(loadavg=True), "package_state": _common.package_state(ROOT),
+           "single_solve": a, "family": b}
+    _common.write_json(args.output, out)
     log(f"wrote {args.output}")
     return 0 if passed else 2
 

@@ -73,44 +73,30 @@ when it is installed).  Results go to ``benchmarks/results/continuation.json``.
 """
 
 import os
+import sys
 
-for _var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS",
-             "VECLIB_MAXIMUM_THREADS", "BLIS_NUM_THREADS"):
-    os.environ[_var] = "1"
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+import _common  # noqa: E402  (first: it pins BLAS to one thread before numpy is imported)
 
-import argparse  # noqa: E402
-import contextlib  # noqa: E402
 import cProfile  # noqa: E402
-import datetime  # noqa: E402
 import functools  # noqa: E402
 import gc  # noqa: E402
-import json  # noqa: E402
 import math  # noqa: E402
-import platform  # noqa: E402
 import pstats  # noqa: E402
-import sys  # noqa: E402
 import time  # noqa: E402
 from collections import defaultdict  # noqa: E402
 
 import numpy as np  # noqa: E402
-import scipy  # noqa: E402
 from scipy.optimize import brentq  # noqa: E402
 
-try:  # optional: only used when installed
-    import threadpoolctl  # noqa: E402
-except ImportError:  # pragma: no cover - depends on the environment
-    threadpoolctl = None
-
-import spectral_bulk  # noqa: E402
 from spectral_bulk.continuation import _continuation as _cont  # noqa: E402
 from spectral_bulk.continuation import follow  # noqa: E402
 from spectral_bulk.grids import Chebyshev  # noqa: E402
 from spectral_bulk.grids import _grid  # noqa: E402
 from spectral_bulk.newton import Problem, assemble_dense, check_jacobian  # noqa: E402
-from spectral_bulk.newton import _linalg, _newton  # noqa: E402
+from spectral_bulk.newton import _newton  # noqa: E402
 
-HERE = os.path.dirname(os.path.abspath(__file__))
-DEFAULT_OUTPUT = os.path.join(HERE, "results", "continuation.json")
+DEFAULT_OUTPUT = _common.default_output("continuation.json")
 
 BRATU_FOLD_QUOTED = 3.513830719125162  # classical Gelfand-Bratu fold (common practice, quoted from memory)
 U_BOUND = 6.0
@@ -209,53 +195,23 @@ def figures(br, wall):
 
 
 def timed_run(case, clock=None):
-    gc.collect()
-    gc.disable()
-    try:
+    with _common.gc_paused():
         if clock is not None:
             clock.reset()
         br, wall, prob = run_branch(case)
-    finally:
-        gc.enable()
     return br, wall, prob
 
 
 # =============================================================================
 # instrumentation: exclusive timers on the package's pieces
 # =============================================================================
-class Clock:
+class Clock(_common.Clock):
     """Exclusive time per category for nested wrapped calls, and inclusive phase times."""
 
-    def __init__(self):
-        self.reset()
-        self._patches = []
-        self.missing = set()
-
     def reset(self):
-        self.excl = defaultdict(float)
-        self.calls = defaultdict(int)
+        super().reset()
         self.phase = defaultdict(float)
         self.counts = defaultdict(int)
-        self._stack = []
-
-    def exclusive(self, cat, fn):
-        clock = self
-
-        @functools.wraps(fn)
-        def wrapper(*args, **kwargs):
-            clock._stack.append(0.0)
-            t0 = time.perf_counter()
-            try:
-                return fn(*args, **kwargs)
-            finally:
-                dt = time.perf_counter() - t0
-                child = clock._stack.pop()
-                clock.excl[cat] += dt - child
-                clock.calls[cat] += 1
-                if clock._stack:
-                    clock._stack[-1] += dt
-
-        return wrapper
 
     def inclusive(self, name, fn):
         clock = self
@@ -281,51 +237,20 @@ class Clock:
 
         return wrapper
 
-    def _patch(self, owner, attr, make):
-        """Replace ``owner.attr`` by ``make(original)``; a missing attribute is recorded, not fatal."""
-        orig = owner.__dict__.get(attr) if isinstance(owner, type) else getattr(owner, attr, None)
-        if orig is None:
-            self.missing.add(f"{getattr(owner, '__name__', owner)}.{attr}")
-            return
-        self._patches.append((owner, attr, orig))
-        setattr(owner, attr, make(orig))
-
-    @contextlib.contextmanager
-    def installed(self):
-        """Wrap the package functions for the duration of the block (always restored)."""
-        def ex(cat):
-            return lambda fn: self.exclusive(cat, fn)
-
-        def same(cat):  # one wrapper shared by every module that imported the function by name
-            cache = {}
-            return lambda fn: cache.setdefault(id(fn), self.exclusive(cat, fn))
-
-        ds = _linalg.DenseSolver
-        try:
-            for attr in ("__init__", "solve", "slogdet"):
-                self._patch(ds, attr, ex("lu"))
-            asm = same("assembly")
-            self._patch(_linalg, "assemble_dense", asm)
-            self._patch(_newton, "assemble_dense", asm)
-            self._patch(_linalg, "_bordered_dense", ex("assembly"))
-            for attr in ("linearize", "param_derivative", "residual"):
-                self._patch(Problem, attr, ex("pointwise"))
-            self._patch(Problem, "derivatives", ex("derivatives"))
-            self._patch(Problem, "_evaluate", lambda fn: self.counter("callback_evaluations", fn))
-            self._patch(_grid.Grid, "axis_tails", ex("tails"))
-            rn = same("certificate")
-            self._patch(_cont, "residual_norm", rn)
-            self._patch(_newton, "residual_norm", rn)
-            fol = _cont._Follower
-            for attr, name in (("locate", "event location"), ("resolve", "resolution/regridding"),
-                               ("land", "landing on bounds/targets"), ("natural", "fixed-parameter Newton"),
-                               ("make_solution", "SolveResult + observables")):
-                self._patch(fol, attr, lambda fn, name=name: self.inclusive(name, fn))
-            yield self
-        finally:
-            while self._patches:
-                owner, attr, orig = self._patches.pop()
-                setattr(owner, attr, orig)
+    def install(self):
+        """The engine's pieces, the certificate's parts and the continuation's phases."""
+        self.time_newton_core(pointwise="pointwise", factorisation="lu", assembly="assembly")
+        self.patch(Problem, "derivatives", self.timer("derivatives"))
+        self.patch(Problem, "_evaluate", lambda fn: self.counter("callback_evaluations", fn))
+        self.patch(_grid.Grid, "axis_tails", self.timer("tails"))
+        rn = self.timer("certificate")
+        self.patch(_cont, "residual_norm", rn)
+        self.patch(_newton, "residual_norm", rn)
+        fol = _cont._Follower
+        for attr, name in (("locate", "event location"), ("resolve", "resolution/regridding"),
+                           ("land", "landing on bounds/targets"), ("natural", "fixed-parameter Newton"),
+                           ("make_solution", "SolveResult + observables")):
+            self.patch(fol, attr, lambda fn, name=name: self.inclusive(name, fn))
 
     def shares(self, wall):
         """Percentages of ``wall`` by category (the four headline ones and the details)."""
@@ -350,15 +275,8 @@ class Clock:
 
 
 # =============================================================================
-# statistics and formatting
+# formatting and profiling
 # =============================================================================
-def summary(samples):
-    s = np.asarray(samples, dtype=float)
-    q25, med, q75 = np.percentile(s, [25, 50, 75])
-    return {"median": float(med), "q25": float(q25), "q75": float(q75), "min": float(s.min()),
-            "max": float(s.max()), "n": int(s.size)}
-
-
 def _fmt(v):
     if isinstance(v, float):
         return f"{v:.16g}" if 1e-3 <= abs(v) < 1e3 else f"{v:.2e}"
@@ -478,52 +396,6 @@ def verify_coupled(br):
 
 
 # =============================================================================
-# machine info
-# =============================================================================
-def machine_info():
-    cpu = platform.processor() or ""
-    with contextlib.suppress(OSError):
-        with open("/proc/cpuinfo") as fh:
-            for line in fh:
-                if line.startswith("model name"):
-                    cpu = line.split(":", 1)[1].strip()
-                    break
-    blas = None
-    with contextlib.suppress(Exception):
-        cfg = np.show_config(mode="dicts")
-        b = cfg.get("Build Dependencies", {}).get("blas", {})
-        blas = {"name": b.get("name"), "version": b.get("version")}
-    info = {
-        "platform": platform.platform(), "machine": platform.machine(), "cpu": cpu,
-        "cpu_count": os.cpu_count(), "python": sys.version.split()[0],
-        "numpy": np.__version__, "scipy": scipy.__version__,
-        "spectral_bulk": spectral_bulk.__version__, "blas": blas,
-        "thread_env": {k: os.environ.get(k) for k in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS",
-                                                      "MKL_NUM_THREADS")},
-        "threadpoolctl": None,
-    }
-    if threadpoolctl is not None:
-        info["threadpoolctl"] = [{"api": d.get("user_api"), "lib": d.get("internal_api"),
-                                  "threads": d.get("num_threads")} for d in threadpoolctl.threadpool_info()]
-    return info
-
-
-def package_state():
-    """Which code was measured: the commit and the package files changed since (read-only git)."""
-    import subprocess
-
-    root = os.path.dirname(os.path.dirname(os.path.abspath(spectral_bulk.__file__)))
-    out = {"path": os.path.dirname(os.path.abspath(spectral_bulk.__file__))}
-    with contextlib.suppress(Exception):
-        out["commit"] = subprocess.run(["git", "-C", root, "rev-parse", "--short", "HEAD"], capture_output=True,
-                                       text=True, timeout=10).stdout.strip()
-        cmd = ["git", "--no-optional-locks", "-C", root, "status", "--porcelain", "--", "spectral_bulk"]
-        st = subprocess.run(cmd, capture_output=True, text=True, timeout=10).stdout
-        out["uncommitted"] = [line[3:] for line in st.splitlines()]
-    return out
-
-
-# =============================================================================
 # main
 # =============================================================================
 SHARE_COLUMNS = [
@@ -541,22 +413,15 @@ DETAIL_COLUMNS = [
 
 
 def main(argv=None):
-    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
-    ap.add_argument("--quick", action="store_true", help="5 rounds, shorter profile listing (< 30 s)")
-    ap.add_argument("--rounds", type=int, default=None, help="rounds A B A B (default 5 quick, 30 full)")
-    ap.add_argument("--output", default=DEFAULT_OUTPUT, help="JSON results file")
+    ap = _common.argument_parser(__doc__, DEFAULT_OUTPUT, "5 rounds, shorter profile listing (< 30 s)",
+                                 rounds_help="rounds A B A B (default 5 quick, 30 full)")
     args = ap.parse_args(argv)
     rounds = args.rounds or (5 if args.quick else 30)
-
-    def log(msg=""):
-        print(msg, flush=True)
-
-    limiter = (threadpoolctl.threadpool_limits(limits=1) if threadpoolctl is not None
-               else contextlib.nullcontext())
+    log = _common.log
     t_start = time.perf_counter()
     names = list(CASES)
     results = {}
-    with limiter:
+    with _common.one_blas_thread():
         # ---- warm-up runs double as the verification runs
         log("verification (warm-up runs, not timed) ...")
         first = {}
@@ -601,12 +466,12 @@ def main(argv=None):
                                         "corrector_iterations_per_point", "jacobian_evaluations_per_point",
                                         "grid_sizes")}
         fig["deterministic_across_runs"] = bool(deterministic)
-        timing = {"wall_s": summary([r["wall_s"] for r in runs]),
-                  "points_per_s": summary([r["points_per_s"] for r in runs]),
-                  "ms_per_point": summary([1e3 * r["wall_s"] / r["points"] for r in runs])}
+        timing = {"wall_s": _common.summary([r["wall_s"] for r in runs]),
+                  "points_per_s": _common.summary([r["points_per_s"] for r in runs]),
+                  "ms_per_point": _common.summary([1e3 * r["wall_s"] / r["points"] for r in runs])}
         shares_keys = instr[case][0]["shares"].keys()
-        shares = {k: summary([r["shares"].get(k, 0.0) for r in instr[case]]) for k in shares_keys}
-        iw = summary([r["wall_s"] for r in instr[case]])
+        shares = {k: _common.summary([r["shares"].get(k, 0.0) for r in instr[case]]) for k in shares_keys}
+        iw = _common.summary([r["wall_s"] for r in instr[case]])
         calls = instr[case][0]["calls"]
         counts = instr[case][0]["counts"]
         lin_calls = calls.get("pointwise", 0)
@@ -629,10 +494,8 @@ def main(argv=None):
     log()
     log(f"Continuation throughput: medians over {rounds} interleaved rounds "
         f"(IQR in brackets), default ContinuationOptions, BLAS 1 thread")
-    hdr = (f"{'case':9s} {'pts':>4s} {'fold lam':>17s} {'|err| / est.':>10s} {'wall ms':>22s} "
-           f"{'points/s':>20s} {'it/pt':>6s} {'jac/pt':>6s}")
-    log(hdr)
-    log("-" * len(hdr))
+    _common.table_header(f"{'case':9s} {'pts':>4s} {'fold lam':>17s} {'|err| / est.':>10s} {'wall ms':>22s} "
+                         f"{'points/s':>20s} {'it/pt':>6s} {'jac/pt':>6s}")
     for case in names:
         r = results[case]
         f, t, v = r["figures"], r["timing"], r["verification"]
@@ -647,9 +510,8 @@ def main(argv=None):
     log("  difference to a Chebyshev(56) run. Points include the start, the fold and the bound point.")
     log()
     log("Share of wall time (median % over instrumented runs, exclusive timers)")
-    hdr2 = f"{'case':9s} " + " ".join(f"{lab:>15s}" for _, lab in SHARE_COLUMNS) + f" {'instr. ovh':>10s}"
-    log(hdr2)
-    log("-" * len(hdr2))
+    _common.table_header(f"{'case':9s} " + " ".join(f"{lab:>15s}" for _, lab in SHARE_COLUMNS)
+                         + f" {'instr. ovh':>10s}")
     for case in names:
         s = results[case]["shares_percent_of_wall"]
         log(f"{case:9s} " + " ".join(f"{s[k]['median']:14.1f}%" for k, _ in SHARE_COLUMNS)
@@ -679,13 +541,13 @@ def main(argv=None):
 
     out = {
         "benchmark": "continuation",
-        "timestamp": datetime.datetime.now(datetime.UTC).isoformat(timespec="seconds"),
+        "timestamp": _common.utc_timestamp(),
         "quick": bool(args.quick),
         "rounds": rounds,
         "total_wall_s": total,
         "verification_passed": bool(passed),
-        "machine": machine_info(),
-        "package_state": package_state(),
+        "machine": _common.machine_info(blas_details=True),
+        "package_state": _common.package_state(path=True, changed_key="uncommitted"),
         "method": {
             "options": "default ContinuationOptions; follow(problem, guess, 'lam', bounds={'u': (None, 6.0)})",
             "interleaving": "per round: plain bratu, plain coupled5, instrumented bratu, instrumented coupled5",
@@ -696,11 +558,7 @@ def main(argv=None):
         "not_instrumented": sorted(clock.missing),
         "cases": results,
     }
-    os.makedirs(os.path.dirname(os.path.abspath(args.output)), exist_ok=True)
-    tmp = args.output + ".tmp"
-    with open(tmp, "w") as fh:
-        json.dump(out, fh, indent=2, default=lambda o: o.item() if hasattr(o, "item") else str(o))
-    os.replace(tmp, args.output)
+    _common.write_json(args.output, out)
     log(f"wrote {args.output}")
     return 0 if passed else 2
 

@@ -35,37 +35,23 @@ using ``cosh^2 - sinh^2 = 1``): with ``u'' + lam e^u = 0`` and ``u(0) = u(1) = 0
 """
 
 import os
+import sys
 
-for _var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS",
-             "VECLIB_MAXIMUM_THREADS", "BLIS_NUM_THREADS"):
-    os.environ[_var] = "1"
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+import _common  # noqa: E402  (first: it pins BLAS to one thread before numpy is imported)
 
-import argparse  # noqa: E402
-import contextlib  # noqa: E402
 import cProfile  # noqa: E402
-import datetime  # noqa: E402
-import gc  # noqa: E402
-import json  # noqa: E402
 import math  # noqa: E402
-import platform  # noqa: E402
 import pstats  # noqa: E402
-import sys  # noqa: E402
 import time  # noqa: E402
 import warnings  # noqa: E402
 
 import numpy as np  # noqa: E402
-import scipy  # noqa: E402
 import scipy.linalg as sla  # noqa: E402
 import scipy.sparse.linalg as spla  # noqa: E402
 from scipy.integrate import solve_bvp, solve_ivp  # noqa: E402
 from scipy.optimize import brentq  # noqa: E402
 
-try:  # optional: only used when installed
-    import threadpoolctl  # noqa: E402
-except ImportError:  # pragma: no cover - depends on the environment
-    threadpoolctl = None
-
-import spectral_bulk  # noqa: E402
 from spectral_bulk.exceptions import ConvergenceWarning  # noqa: E402
 from spectral_bulk.grids import Chebyshev, Fourier, TensorGrid  # noqa: E402
 from spectral_bulk.newton import (  # noqa: E402
@@ -82,8 +68,7 @@ from spectral_bulk.newton import (  # noqa: E402
 )
 from spectral_bulk.newton._linalg import assemble_sparse  # noqa: E402  (breakdown only)
 
-HERE = os.path.dirname(os.path.abspath(__file__))
-DEFAULT_OUTPUT = os.path.join(HERE, "results", "engine.json")
+DEFAULT_OUTPUT = _common.default_output("engine.json")
 TARGET_ERR = 1e-10
 LAM = 3.0
 
@@ -91,59 +76,11 @@ LAM = 3.0
 # =============================================================================
 # timing
 # =============================================================================
-def _calibrate(fun, min_sample):
-    """Number of calls per sample so that one sample lasts at least ``min_sample`` s."""
-    t0 = time.perf_counter()
-    fun()
-    dt = time.perf_counter() - t0
-    return max(1, math.ceil(min_sample / max(dt, 1e-7)))
-
-
-def interleaved(funcs, rounds, min_sample=0.02, warmup=True):
-    """Time the callables of ``funcs`` (name -> fun) in rounds A B A B ...
-
-    Each sample runs a function ``inner`` times (calibrated so that a sample lasts
-    at least ``min_sample`` seconds) and records the time per call.  Garbage
-    collection is off inside a sample (as in ``timeit``).
-
-    Returns a dict name -> {"samples": [...], "inner": k} in seconds per call.
-    """
-    inner = {}
-    for name, fun in funcs.items():
-        if warmup:
-            fun()
-        inner[name] = _calibrate(fun, min_sample) if min_sample > 0 else 1
-    out = {name: {"samples": [], "inner": inner[name]} for name in funcs}
-    for _ in range(rounds):
-        for name, fun in funcs.items():
-            k = inner[name]
-            gc.collect()
-            gc.disable()
-            try:
-                t0 = time.perf_counter()
-                for _ in range(k):
-                    fun()
-                dt = (time.perf_counter() - t0) / k
-            finally:
-                gc.enable()
-            out[name]["samples"].append(dt)
-    return out
-
-
-def summary(samples):
-    s = np.asarray(samples, dtype=float)
-    q25, med, q75 = np.percentile(s, [25, 50, 75])
-    return {"median_s": float(med), "q25_s": float(q25), "q75_s": float(q75),
-            "min_s": float(s.min()), "n_samples": int(s.size)}
-
-
-def ratio(num, den):
-    """Ratio of medians, and the interquartile range of the per-round ratios."""
-    a = np.asarray(num["samples"])
-    b = np.asarray(den["samples"])
-    per_round = a / b
-    q25, q75 = np.percentile(per_round, [25, 75])
-    return {"ratio": float(np.median(a) / np.median(b)), "q25": float(q25), "q75": float(q75)}
+def timing_summary(entry):
+    """One :func:`_common.interleaved` entry as this benchmark records it (seconds per call)."""
+    s = _common.summary(entry["samples"])
+    return {"median_s": s["median"], "q25_s": s["q25"], "q75_s": s["q75"], "min_s": s["min"],
+            "n_samples": s["n"], "inner": entry["inner"]}
 
 
 def fmt_time(t):
@@ -266,7 +203,9 @@ def bench_bratu(quick, log):
                 sol = run()
                 err_b = float(np.abs(sol.sol(xx)[0] - exact).max()) if sol.status == 0 else float("nan")
                 ok = sol.status == 0 and err_b <= TARGET_ERR
-                t = min(interleaved({"c": run}, 3, min_sample=0.005)["c"]["samples"]) if ok else float("nan")
+                t = float("nan")
+                if ok:
+                    t = min(_common.interleaved({"c": run}, 3, min_sample=0.005, warmup=True)["c"]["samples"])
                 candidates.append({"tol": tol, "initial_mesh": m, "analytic_jacobian": jac,
                                    "status": int(sol.status), "final_mesh": int(sol.x.size),
                                    "error": err_b, "meets_target": bool(ok), "time_s": t})
@@ -336,7 +275,7 @@ def bench_bratu(quick, log):
             except (ValueError, RuntimeError):
                 err_s = float("nan")
             ok = bool(err_s <= TARGET_ERR)
-            t = min(interleaved({"c": run}, 2, min_sample=0.0)["c"]["samples"]) if ok else float("nan")
+            t = min(_common.interleaved({"c": run}, 2, warmup=True)["c"]["samples"]) if ok else float("nan")
             shoot_cands.append({"method": method, "rtol": rtol, "atol": rtol / 10, "error": err_s,
                                 "meets_target": ok, "time_s": t})
     passing_s = [c for c in shoot_cands if c["meets_target"]]
@@ -360,21 +299,25 @@ def bench_bratu(quick, log):
         log(f"    verified max error {k:>22s}: {v:.2e}  ({'ok' if v <= TARGET_ERR else 'FAILED'})")
     ok_all = all(v <= TARGET_ERR for v in verify.values())
 
-    timing = interleaved(runs, 7 if quick else 21, min_sample=0.01 if quick else 0.03)
+    timing = _common.interleaved(runs, 7 if quick else 21, min_sample=0.01 if quick else 0.03, warmup=True)
     out.update(spectral=spec, solve_bvp={"chosen": best, "chosen_other_jacobian": best_other,
                                          "candidates": candidates},
                shooting={"chosen": best_s, "bracket": [0.0, s_hi], "candidates": shoot_cands},
                verified_errors=verify, verified=ok_all,
-               timing={k: summary(v["samples"]) | {"inner": v["inner"]} for k, v in timing.items()},
+               timing={k: timing_summary(v) for k, v in timing.items()},
                ratios={})
     # the tuned solve_bvp is the faster of the two Jacobian choices in the interleaved run
     bvp_keys = [k for k in ("solve_bvp", "solve_bvp_other_jacobian") if k in timing]
     fastest = min(bvp_keys, key=lambda k: np.median(timing[k]["samples"]))
     out["solve_bvp"]["fastest_in_timing"] = fastest
-    out["ratios"]["solve_bvp/spectral_bulk"] = ratio(timing[fastest], timing["spectral_bulk"])
-    out["ratios"]["shooting/spectral_bulk"] = ratio(timing["shooting"], timing["spectral_bulk"])
+
+    def over_spectral(k):
+        return _common.ratio(timing[k]["samples"], timing["spectral_bulk"]["samples"])
+
+    out["ratios"]["solve_bvp/spectral_bulk"] = over_spectral(fastest)
+    out["ratios"]["shooting/spectral_bulk"] = over_spectral("shooting")
     for k in bvp_keys:
-        out["ratios"][f"{k}/spectral_bulk (each)"] = ratio(timing[k], timing["spectral_bulk"])
+        out["ratios"][f"{k}/spectral_bulk (each)"] = over_spectral(k)
 
     # -- where a spectral solve spends its time: per-call costs times call counts
     u = res.state
@@ -389,8 +332,8 @@ def bench_bratu(quick, log):
         "grid.tail": lambda: prob.grid.tail(prob.split(u), prob.scales),
         "check(guess)": lambda: prob.check(u),
     }
-    pt = interleaved(parts, 5 if quick else 11, min_sample=0.005)
-    per_call = {k: summary(v["samples"])["median_s"] for k, v in pt.items()}
+    pt = _common.interleaved(parts, 5 if quick else 11, min_sample=0.005, warmup=True)
+    per_call = {k: timing_summary(v)["median_s"] for k, v in pt.items()}
     # calls per solve, from the result counters and the code path of solve():
     # njev linearize + njev factorisations; nfev - njev residuals (trial steps, check
     # and certificate); one lu_solve per step plus one per damping test;
@@ -491,8 +434,8 @@ def bench_coupled_1d(quick, log):
     dx = newton_step()
     step_resid = float(np.abs(J @ dx - F).max() / (np.abs(J).max() * np.abs(dx).max() + np.abs(F).max()))
     rounds = 11 if quick else 31
-    t = interleaved({"newton_step": newton_step, "lu_factor_300": lu_only}, rounds,
-                    min_sample=0.01 if quick else 0.03)
+    t = _common.interleaved({"newton_step": newton_step, "lu_factor_300": lu_only}, rounds,
+                            min_sample=0.01 if quick else 0.03, warmup=True)
     solver = DenseSolver(prob, A, matrix=J)
     parts = {
         "linearize": lambda: prob.linearize(u0),
@@ -501,15 +444,15 @@ def bench_coupled_1d(quick, log):
         "lu_factor alone": lu_only,
         "solve (lu_solve)": lambda: solver.solve(F),
     }
-    pt = interleaved(parts, 7 if quick else 21, min_sample=0.005 if quick else 0.02)
-    bd = {k: summary(v["samples"])["median_s"] for k, v in pt.items()}
+    pt = _common.interleaved(parts, 7 if quick else 21, min_sample=0.005 if quick else 0.02, warmup=True)
+    bd = {k: timing_summary(v)["median_s"] for k, v in pt.items()}
     bd["LU extras (norm + gecon)"] = bd["DenseSolver(matrix=J) [LU + norm + gecon]"] - bd["lu_factor alone"]
     out = {"n_points": 60, "n_fields": NF1, "unknowns": prob.size,
            "check_jacobian": jac_err, "step_backward_error": step_resid,
            "solve": {"converged": bool(res.converged), "iterations": res.iterations,
                      "residual": res.residual, "worst_tail": res.worst_tail},
-           "timing": {k: summary(v["samples"]) | {"inner": v["inner"]} for k, v in t.items()},
-           "ratio": ratio(t["newton_step"], t["lu_factor_300"]),
+           "timing": {k: timing_summary(v) for k, v in t.items()},
+           "ratio": _common.ratio(t["newton_step"]["samples"], t["lu_factor_300"]["samples"]),
            "breakdown_s": bd,
            "linearize_batched": bool(getattr(prob, "_batched", True))}
     ok = jac_err < 1e-6 and res.converged and step_resid < 1e-12
@@ -607,8 +550,7 @@ def bench_coupled_2d(quick, log):
         return sla.lu_factor(J, check_finite=False)
 
     rounds = 2 if quick else 5
-    t = interleaved({"newton_step_gmres": lambda: newton_step(), "lu_factor_dense": lu_only}, rounds,
-                    min_sample=0.0, warmup=False)
+    t = _common.interleaved({"newton_step_gmres": lambda: newton_step(), "lu_factor_dense": lu_only}, rounds)
     # breakdown of the step (interleaved too), and the preconditioner's two parts
     A_now = A
     P = assemble_sparse(prob, A_now, "fd")
@@ -620,8 +562,8 @@ def bench_coupled_2d(quick, log):
         "gmres solve": lambda: KrylovSolver.solve(ks_fixed, F),
     }
     ks_fixed = KrylovSolver(prob, A_now, rtol=rtol)
-    pt = interleaved(parts, 3 if quick else 7, min_sample=0.05)
-    bd = {k: summary(v["samples"])["median_s"] for k, v in pt.items()}
+    pt = _common.interleaved(parts, 3 if quick else 7, min_sample=0.05, warmup=True)
+    bd = {k: timing_summary(v)["median_s"] for k, v in pt.items()}
     records = []
     for _ in range(3):
         rec = {}
@@ -640,8 +582,8 @@ def bench_coupled_2d(quick, log):
            "gmres_vs_dense_step_rel_diff": step_diff, "gmres_iterations": gm_iters,
            "fallback": ks.fallback, "assemble_dense_s": t_assemble,
            "cold_first_step": cold,
-           "timing": {k: summary(v["samples"]) | {"inner": v["inner"]} for k, v in t.items()},
-           "ratio": ratio(t["newton_step_gmres"], t["lu_factor_dense"]),
+           "timing": {k: timing_summary(v) for k, v in t.items()},
+           "ratio": _common.ratio(t["newton_step_gmres"]["samples"], t["lu_factor_dense"]["samples"]),
            "breakdown_s": bd,
            "linearize_batched": bool(getattr(prob, "_batched", True)),
            "solve": {"converged": bool(res.converged), "iterations": res.iterations,
@@ -651,36 +593,8 @@ def bench_coupled_2d(quick, log):
 
 
 # =============================================================================
-# machine info, report
+# report
 # =============================================================================
-def machine_info():
-    cpu = platform.processor() or ""
-    with contextlib.suppress(OSError):
-        with open("/proc/cpuinfo") as fh:
-            for line in fh:
-                if line.startswith("model name"):
-                    cpu = line.split(":", 1)[1].strip()
-                    break
-    blas = None
-    with contextlib.suppress(Exception):
-        cfg = np.show_config(mode="dicts")
-        b = cfg.get("Build Dependencies", {}).get("blas", {})
-        blas = {"name": b.get("name"), "version": b.get("version")}
-    info = {
-        "platform": platform.platform(), "machine": platform.machine(), "cpu": cpu,
-        "cpu_count": os.cpu_count(), "python": sys.version.split()[0],
-        "numpy": np.__version__, "scipy": scipy.__version__,
-        "spectral_bulk": spectral_bulk.__version__, "blas": blas,
-        "thread_env": {k: os.environ.get(k) for k in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS",
-                                                      "MKL_NUM_THREADS")},
-        "threadpoolctl": None,
-    }
-    if threadpoolctl is not None:
-        info["threadpoolctl"] = [{"api": d.get("user_api"), "lib": d.get("internal_api"),
-                                  "threads": d.get("num_threads")} for d in threadpoolctl.threadpool_info()]
-    return info
-
-
 TARGETS = [
     ("a", "solve_bvp/spectral_bulk", ">=", 25.0),
     ("b", "newton_step/lu_factor_300", "<=", 2.0),
@@ -689,18 +603,11 @@ TARGETS = [
 
 
 def main(argv=None):
-    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
-    ap.add_argument("--quick", action="store_true", help="fewer rounds and candidates (about a minute)")
-    ap.add_argument("--output", default=DEFAULT_OUTPUT, help="JSON results file")
+    ap = _common.argument_parser(__doc__, DEFAULT_OUTPUT, "fewer rounds and candidates (about a minute)")
     args = ap.parse_args(argv)
-
-    def log(msg):
-        print(msg, flush=True)
-
-    limiter = (threadpoolctl.threadpool_limits(limits=1) if threadpoolctl is not None
-               else contextlib.nullcontext())
+    log = _common.log
     t_start = time.perf_counter()
-    with limiter:
+    with _common.one_blas_thread():
         a, ok_a = bench_bratu(args.quick, log)
         b, ok_b = bench_coupled_1d(args.quick, log)
         c, ok_c = bench_coupled_2d(args.quick, log)
@@ -737,19 +644,16 @@ def main(argv=None):
         extra = f"GMRES its {c['gmres_iterations']}" if "gmres" in name else ""
         rows.append(("c", name, s, extra))
     print()
-    print(f"{'part':4s} {'measure':46s} {'median':>11s} {'IQR':>25s}  note")
-    print("-" * 100)
+    _common.table_header(f"{'part':4s} {'measure':46s} {'median':>11s} {'IQR':>25s}  note", width=100)
     for part, label, s, note in rows:
         iqr = f"[{fmt_time(s['q25_s']).strip()}, {fmt_time(s['q75_s']).strip()}]"
         print(f"{part:4s} {label:46s} {fmt_time(s['median_s'])} {iqr:>25s}  {note}")
     print()
     print("Ratios (ratio of medians; brackets: IQR of per-round ratios)")
     for name, r in a["ratios"].items():
-        print(f"  a  {name:48s} {r['ratio']:8.3f}  [{r['q25']:.3f}, {r['q75']:.3f}]")
-    print(f"  b  {'newton_step/lu_factor_300':48s} {b['ratio']['ratio']:8.3f}  "
-          f"[{b['ratio']['q25']:.3f}, {b['ratio']['q75']:.3f}]")
-    print(f"  c  {'newton_step_gmres/lu_factor_dense':48s} {c['ratio']['ratio']:8.3f}  "
-          f"[{c['ratio']['q25']:.3f}, {c['ratio']['q75']:.3f}]")
+        print(f"  a  {name:48s} {_common.fmt_ratio(r)}")
+    print(f"  b  {'newton_step/lu_factor_300':48s} {_common.fmt_ratio(b['ratio'])}")
+    print(f"  c  {'newton_step_gmres/lu_factor_dense':48s} {_common.fmt_ratio(c['ratio'])}")
     print()
     print("Targets")
     for tgt in targets:
@@ -784,10 +688,10 @@ def main(argv=None):
     verified = ok_a and ok_b and ok_c
     result = {
         "benchmark": "bench_engine",
-        "timestamp": datetime.datetime.now(datetime.UTC).isoformat(timespec="seconds"),
+        "timestamp": _common.utc_timestamp(),
         "mode": "quick" if args.quick else "full",
         "wall_time_s": wall,
-        "machine": machine_info(),
+        "machine": _common.machine_info(blas_details=True),
         "verified": {"a_bratu": ok_a, "b_coupled_1d": ok_b, "c_coupled_2d": ok_c},
         "targets": targets,
         "a_bratu": a,
@@ -799,11 +703,7 @@ def main(argv=None):
             "lu_factor references use check_finite=False (pure LAPACK getrf).",
         ],
     }
-    os.makedirs(os.path.dirname(os.path.abspath(args.output)), exist_ok=True)
-    tmp = args.output + ".tmp"
-    with open(tmp, "w") as fh:
-        json.dump(result, fh, indent=2, default=_json_default)
-    os.replace(tmp, args.output)
+    _common.write_json(args.output, result, default=_json_default)
     print(f"results written to {args.output}")
     if not verified:
         print("ACCURACY VERIFICATION FAILED (see above)", file=sys.stderr)

@@ -49,43 +49,29 @@ Exit status: 0 when every verification passed, 2 otherwise.
 """
 
 import os
+import sys
 
-for _var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS",
-             "VECLIB_MAXIMUM_THREADS", "BLIS_NUM_THREADS"):
-    os.environ[_var] = "1"
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+import _common  # noqa: E402  (first: it pins BLAS to one thread before numpy is imported)
+from _common import log, quiet, ratio, summary  # noqa: E402
 
-import argparse  # noqa: E402
-import contextlib  # noqa: E402
-import datetime  # noqa: E402
 import functools  # noqa: E402
 import gc  # noqa: E402
 import json  # noqa: E402
 import math  # noqa: E402
-import platform  # noqa: E402
-import sys  # noqa: E402
 import time  # noqa: E402
-import warnings  # noqa: E402
+from collections import defaultdict  # noqa: E402
 
 import numpy as np  # noqa: E402
-import scipy  # noqa: E402
-
-try:  # optional
-    import threadpoolctl  # noqa: E402
-except ImportError:  # pragma: no cover
-    threadpoolctl = None
 
 import spectral_bulk  # noqa: E402
 from spectral_bulk.backgrounds import QLatticeWall  # noqa: E402
-from spectral_bulk.backgrounds import _wall as _wall_mod  # noqa: E402
 from spectral_bulk.holography import _walls as _hwalls  # noqa: E402
 from spectral_bulk.holography._walls import WALL_CERTIFICATE  # noqa: E402
 from spectral_bulk.models import builtin  # noqa: E402
-from spectral_bulk.newton import Problem  # noqa: E402
-from spectral_bulk.newton import _linalg, _newton  # noqa: E402
 
-HERE = os.path.dirname(os.path.abspath(__file__))
-ROOT = os.path.dirname(HERE)
-DEFAULT_OUTPUT = os.path.join(HERE, "results", "walls.json")
+ROOT = _common.REPO_ROOT
+DEFAULT_OUTPUT = _common.default_output("walls.json")
 REF_PATH = os.path.join(ROOT, "tests", "reference", "wall_values.json")
 
 LAM_C_DOC = 8.7710267981       # docs/physics/domain_walls.md section 7.2 (+- 5e-11)
@@ -95,29 +81,6 @@ NS = (48, 64, 96, 128, 160)
 N_SELF = 240
 CUTOFFS = (20.0, 24.0, 30.0)
 FAMILY = dict(stop=20.0, step=0.3, bounds={"n": (None, 1e9)}, max_points=300)
-
-
-def log(msg=""):
-    print(msg, flush=True)
-
-
-def quiet(fun, *args, **kwargs):
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        return fun(*args, **kwargs)
-
-
-def summary(samples):
-    s = np.asarray(samples, dtype=float)
-    q25, med, q75 = np.percentile(s, [25, 50, 75])
-    return {"median": float(med), "q25": float(q25), "q75": float(q75), "min": float(s.min()),
-            "max": float(s.max()), "n": int(s.size)}
-
-
-def ratio(num, den):
-    a, b = np.asarray(num, dtype=float), np.asarray(den, dtype=float)
-    q25, q75 = np.percentile(a / b, [25, 75])
-    return {"ratio": float(np.median(a) / np.median(b)), "q25": float(q25), "q75": float(q75)}
 
 
 def load_reference():
@@ -240,69 +203,39 @@ def verify_near_critical(w, br, crit, model):
     return rows
 
 
-class Clock:
-    """Exclusive wall time per category for nested wrapped calls (a callee's time is
-    subtracted from its caller's)."""
+class Clock(_common.Clock):
+    """Exclusive timers on the wall observables (fixed points separately), the IR-change
+    bisection and the engine's pieces; ``incl`` adds each category's inclusive time (outermost
+    calls only, so nested calls of a category are not counted twice)."""
 
-    def __init__(self):
-        self.excl, self.incl, self.calls, self._stack, self._patches, self.missing = {}, {}, {}, [], [], []
-        self._cats = []
+    def reset(self):
+        super().reset()
+        self.incl = defaultdict(float)
+        self._depth = defaultdict(int)
 
-    def wrap(self, cat, fn):
+    def exclusive(self, cat, fn):
+        timed = super().exclusive(cat, fn)
         clock = self
 
         @functools.wraps(fn)
         def wrapper(*args, **kwargs):
-            clock._stack.append(0.0)
-            clock._cats.append(cat)
+            clock._depth[cat] += 1
             t0 = time.perf_counter()
             try:
-                return fn(*args, **kwargs)
+                return timed(*args, **kwargs)
             finally:
-                dt = time.perf_counter() - t0
-                clock._cats.pop()
-                child = clock._stack.pop()
-                clock.excl[cat] = clock.excl.get(cat, 0.0) + dt - child
-                if not any(c == cat for c in clock._cats):  # outermost call of this category
-                    clock.incl[cat] = clock.incl.get(cat, 0.0) + dt
-                clock.calls[cat] = clock.calls.get(cat, 0) + 1
-                if clock._stack:
-                    clock._stack[-1] += dt
+                clock._depth[cat] -= 1
+                if not clock._depth[cat]:  # outermost call of this category
+                    clock.incl[cat] += time.perf_counter() - t0
+
         return wrapper
 
-    def _patch(self, owner, attr, make):
-        orig = owner.__dict__.get(attr) if isinstance(owner, type) else getattr(owner, attr, None)
-        if orig is None:
-            self.missing.append(f"{getattr(owner, '__name__', owner)}.{attr}")
-            return
-        self._patches.append((owner, attr, orig))
-        setattr(owner, attr, make(orig))
-
-    @contextlib.contextmanager
-    def installed(self):
-        cache = {}
-
-        def same(cat):
-            return lambda fn: cache.setdefault(id(fn), self.wrap(cat, fn))
-
-        try:
-            self._patch(_hwalls, "fixed_points", same("fixed_points"))  # looked up as a module global
-            self._patch(QLatticeWall, "_locate_ir_changes", same("ir_change_bisection"))
-            self._patch(QLatticeWall, "observables", same("observables"))
-            self._patch(QLatticeWall, "family_observables", same("observables"))
-            for attr in ("linearize", "param_derivative", "residual"):
-                self._patch(Problem, attr, same("pointwise"))
-            for attr in ("__init__", "solve", "slogdet"):
-                self._patch(_linalg.DenseSolver, attr, same("linear_algebra"))
-            for mod in (_linalg, _newton):
-                if hasattr(mod, "assemble_dense"):
-                    self._patch(mod, "assemble_dense", same("linear_algebra"))
-            self._patch(_linalg, "_bordered_dense", same("linear_algebra"))
-            yield self
-        finally:
-            while self._patches:
-                owner, attr, orig = self._patches.pop()
-                setattr(owner, attr, orig)
+    def install(self):
+        self.patch(_hwalls, "fixed_points", self.timer("fixed_points"))  # looked up as a module global
+        self.patch(QLatticeWall, "_locate_ir_changes", self.timer("ir_change_bisection"))
+        self.patch(QLatticeWall, "observables", self.timer("observables"))
+        self.patch(QLatticeWall, "family_observables", self.timer("observables"))
+        self.time_newton_core()
 
 
 def instrumented_family():
@@ -321,7 +254,7 @@ def instrumented_family():
     inclusive = {k: 100 * v / wall for k, v in clock.incl.items()}
     return {"wall_s": wall, "cpu_s": cpu, "points": len(br), "shares_percent_of_wall": shares,
             "inclusive_percent_of_wall": inclusive,
-            "calls": dict(clock.calls), "not_instrumented": clock.missing,
+            "calls": dict(clock.calls), "not_instrumented": sorted(clock.missing),
             "note": "exclusive timers: fixed_points (holography._walls.fixed_points, recomputed at every "
                     "observables call), ir_change_bisection (QLatticeWall._locate_ir_changes after the run, "
                     "its Newton solves and classifications counted in their own categories), observables "
@@ -398,43 +331,6 @@ def sweep_once(model, hi):
     return times
 
 
-# =============================================================================
-# machine info
-# =============================================================================
-def machine_info():
-    cpu = platform.processor() or ""
-    with contextlib.suppress(OSError):
-        with open("/proc/cpuinfo") as fh:
-            for line in fh:
-                if line.startswith("model name"):
-                    cpu = line.split(":", 1)[1].strip()
-                    break
-    info = {"platform": platform.platform(), "machine": platform.machine(), "cpu": cpu,
-            "cpu_count": os.cpu_count(), "python": sys.version.split()[0], "numpy": np.__version__,
-            "scipy": scipy.__version__, "spectral_bulk": spectral_bulk.__version__,
-            "thread_env": {k: os.environ.get(k) for k in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS",
-                                                          "MKL_NUM_THREADS")}}
-    with contextlib.suppress(OSError):
-        info["loadavg_at_start"] = os.getloadavg()
-    if threadpoolctl is not None:
-        info["threadpoolctl"] = [{"api": d.get("user_api"), "threads": d.get("num_threads")}
-                                 for d in threadpoolctl.threadpool_info()]
-    return info
-
-
-def package_state():
-    import subprocess
-
-    out = {}
-    with contextlib.suppress(Exception):
-        out["commit"] = subprocess.run(["git", "-C", ROOT, "rev-parse", "--short", "HEAD"], capture_output=True,
-                                       text=True, timeout=10).stdout.strip()
-        st = subprocess.run(["git", "--no-optional-locks", "-C", ROOT, "status", "--porcelain", "--",
-                             "spectral_bulk"], capture_output=True, text=True, timeout=10).stdout
-        out["uncommitted_package_files"] = [line[3:] for line in st.splitlines()]
-    return out
-
-
 EXPLANATION = """\
 Why the run stops near lam_c (docs/physics/domain_walls.md section 7): for V = -6 - rho^2,
 Phi = rho^2 the Q-lattice wall whose infrared is AdS4 again exists only for lam/k < lam_c
@@ -455,18 +351,15 @@ the intermediate AdS3 x R regime first appears."""
 # main
 # =============================================================================
 def main(argv=None):
-    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
-    ap.add_argument("--quick", action="store_true", help="one family run, fewer sweep passes (< 1 minute)")
-    ap.add_argument("--rounds", type=int, default=None, help="rounds A B (default 1 quick, 3 full)")
-    ap.add_argument("--output", default=DEFAULT_OUTPUT)
+    ap = _common.argument_parser(__doc__, DEFAULT_OUTPUT, "one family run, fewer sweep passes (< 1 minute)",
+                                 rounds_help="rounds A B (default 1 quick, 3 full)")
     args = ap.parse_args(argv)
     rounds = args.rounds or (1 if args.quick else 3)
     passes = 3 if args.quick else 5
     ref, crit = load_reference()
     model = builtin("mass2")
-    limiter = threadpoolctl.threadpool_limits(limits=1) if threadpoolctl is not None else contextlib.nullcontext()
     t_start = time.perf_counter()
-    with limiter:
+    with _common.one_blas_thread():
         log("certified adaptive solves (cutoff 24) at lam/k = 0.5, 2, 6, 8 ...")
         w24, hi, t24 = certified_chain(model)
         log("convergence table (fixed N) ...")
@@ -562,10 +455,8 @@ def main(argv=None):
 
     # ---- report
     log()
-    log("=" * 100)
-    log("a. Large-coupling run: QLatticeWall(builtin('mass2')).follow({'lam': 0.5}, stop=20.0, step=0.3, "
-        "bounds={'n': (None, 1e9)}, max_points=300)")
-    log("=" * 100)
+    _common.banner("a. Large-coupling run: QLatticeWall(builtin('mass2')).follow({'lam': 0.5}, stop=20.0, step=0.3, "
+                   "bounds={'n': (None, 1e9)}, max_points=300)")
     tm = fam["timing"]
     log(f"stop reason: status {fam['status']}: {fam['message']}   ({fam['points']} points)")
     log(f"reached lam/k = {fam['lam_reached']:.8f} (lam_c - lam = {fam['lam_c_minus_lam_reached']:.2e}), "
@@ -608,15 +499,12 @@ def main(argv=None):
     for line in EXPLANATION.splitlines():
         log(line)
     log()
-    log("=" * 100)
-    log("b. n(lam/k): convergence in N (QLatticeWall(model, n=N, n_max=N) problem, Newton from the certified "
-        "solution) and cut-off independence")
-    log("=" * 100)
+    _common.banner("b. n(lam/k): convergence in N (QLatticeWall(model, n=N, n_max=N) problem, Newton from the "
+                   "certified solution) and cut-off independence")
     hdr = f"{'lam/k':>5s} {'reference n':>20s} {'ref err':>8s} " + " ".join(f"{'N=' + str(N):>9s}" for N in NS) + \
         f" {'N=240':>9s} {'adaptive':>14s}"
     log("relative error of n against the reference (wall_values.json):")
-    log(hdr)
-    log("-" * len(hdr))
+    _common.table_header(hdr)
     for lam in LAMS:
         t = table[lam]
         ad = t["adaptive"]
@@ -651,13 +539,13 @@ def main(argv=None):
     log("verification: " + ", ".join(f"{k} {'ok' if v else 'FAILED'}" for k, v in checks.items()))
     log(f"{'passed' if passed else 'FAILED'}; total {total:.1f} s")
 
-    out = {"benchmark": "walls", "timestamp": datetime.datetime.now(datetime.UTC).isoformat(timespec="seconds"),
+    out = {"benchmark": "walls", "timestamp": _common.utc_timestamp(),
            "quick": bool(args.quick), "rounds": rounds, "total_wall_s": total, "verification_passed": bool(passed),
            "checks": checks,
            "targets": {"lam_c": LAM_C_DOC, "nu": NU, "lam_c_tolerance": 1e-4, "nu_tolerance": 0.03,
                        "wall_certificate_thresholds": WALL_CERTIFICATE,
                        "quick_run_seconds": 60, "full_run_seconds": "a few minutes"},
-           "machine": machine_info(), "package_state": package_state(),
+           "machine": _common.machine_info(loadavg=True), "package_state": _common.package_state(ROOT),
            "large_coupling": {**fam, "runs": fam_runs}, "explanation": EXPLANATION,
            "convergence": {str(lam): {**table[lam], "by_N": {str(N): v for N, v in table[lam]["by_N"].items()}}
                            for lam in LAMS},
@@ -666,11 +554,7 @@ def main(argv=None):
            "fixed_N_solve_time_s": {str(N): sweep_stats[N] for N in NS},
            "fixed_N_solve_time_ratio_to_N48": {str(N): sweep_ratios[N] for N in NS},
            "family_cpu_per_point_over_N160_solve": fam_vs_solve}
-    os.makedirs(os.path.dirname(os.path.abspath(args.output)), exist_ok=True)
-    tmp = args.output + ".tmp"
-    with open(tmp, "w") as fh:
-        json.dump(out, fh, indent=2, default=lambda o: o.item() if hasattr(o, "item") else str(o))
-    os.replace(tmp, args.output)
+    _common.write_json(args.output, out)
     log(f"wrote {args.output}")
     return 0 if passed else 2
 
