@@ -175,9 +175,12 @@ def test_step_below_minimum_is_reported():
     assert len(br) == 1
 
 
-def test_every_stop_reason_has_a_message():
+def test_every_stop_reason_formats_with_the_fields_the_loop_provides():
+    # the keys filled in by the continuation loop (and `why` for a failed start)
+    fields = dict(max_points=10, param="lam", name="lam", bound=1.0, min_step=1e-8, value=0.5,
+                  tail_tol=1e-10, n=(32,), why="x")
     for code, text in CONTINUATION_MESSAGES.items():
-        assert isinstance(code, int) and text
+        assert text.format(**fields)  # raises KeyError for a field the loop does not provide
 
 
 def test_cli_follow_and_show(tmp_path, capsys):
