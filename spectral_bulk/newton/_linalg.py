@@ -43,8 +43,16 @@ def assemble_dense(problem, A):
     """Dense Jacobian ``(size, size)`` from pointwise coefficients ``A`` (nf, nf, na, npts)."""
     d = problem._dense_ops() if hasattr(problem, "_dense_ops") else _dense_ops(problem)
     nf, _, na, n = A.shape
-    # the plain C loop of einsum wins for small systems, the BLAS path for larger ones
-    j4 = np.einsum("jikp,kpq->jpiq", A, d, optimize=nf * nf * na * n * n > 20000)
+    # the plain C loop of einsum wins for small systems, a BLAS contraction for larger
+    # ones; its path is searched once per problem, not on every call
+    path = False
+    if nf * nf * na * n * n > 20000:
+        plan = problem._plan() if hasattr(problem, "_plan") else {}
+        path = plan.get("einsum_path")
+        if path is None:
+            path = np.einsum_path("jikp,kpq->jpiq", A, d, optimize="greedy")[0]
+            plan["einsum_path"] = path
+    j4 = np.einsum("jikp,kpq->jpiq", A, d, optimize=path)
     return j4.reshape(nf * n, nf * n)
 
 
@@ -112,14 +120,15 @@ class DenseSolver:
 
     def __init__(self, problem, A, border=None, matrix=None, check=True):
         self.check = check
-        J = assemble_dense(problem, A) if matrix is None else matrix
-        M = _bordered_dense(J, border)
+        J = assemble_dense(problem, A) if matrix is None else np.array(matrix, dtype=float)
+        M = _bordered_dense(J, border)  # a fresh array: scaled in place below
         # row equilibration: rows of different equations (or of strongly mapped grids)
         # differ in scale by many orders; scaling them makes LU and the condition
         # estimate meaningful (the determinant is corrected in slogdet)
-        rmax = np.abs(M).max(axis=1)
+        rmax = np.maximum(M.max(axis=1), -M.min(axis=1))
         self.rscale = np.where(rmax > 0, 1.0 / np.where(rmax > 0, rmax, 1.0), 1.0)
-        self.matrix = M * self.rscale[:, None]
+        M *= self.rscale[:, None]
+        self.matrix = M
         # raw LAPACK getrf/getrs: the checking wrappers cost more than small factorisations
         self.lu, self.piv, info = sla.lapack.dgetrf(self.matrix)
         d = np.abs(np.diag(self.lu))
