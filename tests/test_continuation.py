@@ -179,7 +179,7 @@ def test_every_stop_reason_formats_with_the_fields_the_loop_provides():
     # the keys filled in by the continuation loop (and `why` for a failed start)
     fields = dict(max_points=10, param="lam", name="lam", bound=1.0, min_step=1e-8, value=0.5,
                   tail_tol=1e-10, n=(32,), why="x")
-    for code, text in CONTINUATION_MESSAGES.items():
+    for text in CONTINUATION_MESSAGES.values():
         assert text.format(**fields)  # raises KeyError for a field the loop does not provide
 
 

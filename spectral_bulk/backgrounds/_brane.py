@@ -35,7 +35,7 @@ from ..exceptions import ConvergenceWarning, ProblemDefinitionError
 from ..grids import Chebyshev
 from ..gravity import MatterContent, Series, coordinate_series, einstein_deturck
 from ..models import BulkModel, QLatticeModel
-from ..newton import NewtonOptions, Problem, SolveResult, solve
+from ..newton import NewtonOptions, Problem, SolveResult
 
 __all__ = ["Brane", "BlackBrane", "QLatticeBrane", "AxionBrane", "BackgroundSolution", "BraneSolution"]
 
@@ -280,7 +280,7 @@ class Brane:
             out = {"A": 1 + 0 * z, "B": 1 + 0 * z, "C": 1 + 0 * z}
             if self.gauge == "deturck":
                 out["S"] = 1 + 0 * z
-            for (dm, src_dim), name, src in zip(self._dims(), self.scalar_fields, self.source_names()):
+            for (_, src_dim), name, src in zip(self._dims(), self.scalar_fields, self.source_names()):
                 val = params.get(src, 0.0) * self.T**src_dim
                 out[name] = (val * (1 - z) if self.quantization == "standard" else val * z * (1 - z / 2))
             if self.charged:

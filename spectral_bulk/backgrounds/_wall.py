@@ -34,8 +34,7 @@ import math
 
 import numpy as np
 
-from .._utils import emit_user_level_warning
-from ..exceptions import ConvergenceWarning, ProblemDefinitionError
+from ..exceptions import ProblemDefinitionError
 from ..grids import Chebyshev, ExponentialMap
 from ..gravity import MatterContent, Series, coordinate_series, einstein_deturck
 from ..models import BulkModel, QLatticeModel, critical_points

@@ -50,7 +50,7 @@ import numpy as np
 
 from .._utils import validate_tol
 from ..exceptions import ProblemDefinitionError, SingularJacobianError
-from ..newton import Problem, SolveResult, make_solver, residual_norm, scaled_norm, solve
+from ..newton import Problem, SolveResult, make_solver, residual_norm, scaled_norm
 from ..newton._newton import initial_state
 
 log = logging.getLogger("spectral_bulk.continuation")
@@ -701,7 +701,6 @@ class _Follower:
 
 def _start_point(fol, problem, start, step, tangent=None):
     """Converge (if needed) the start solution and compute its tangent."""
-    o = fol.o
     params = fol.params
     if isinstance(start, SolveResult):
         prob = problem if start.grid == problem.grid else problem.with_grid(start.grid)

@@ -119,13 +119,6 @@ class Series:
         return f"Series(val={self.val}, prec={self.prec}, batch={self.batch_shape})"
 
     # ------------------------------------------------------------- arithmetic
-    @staticmethod
-    def _lift(x, like):
-        if isinstance(x, Series):
-            return x
-        x = _as_array(x)
-        return _Exact(x)
-
     def __neg__(self):
         return Series(-self.c, self.val)
 

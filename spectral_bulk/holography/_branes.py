@@ -210,8 +210,7 @@ def _action_free_energy(bg, sol, st):
         psi_nodes = sol.fields[bg.scalar_fields[0]]
         psi, psi1 = P @ psi_nodes, P @ (D1 @ psi_nodes)
         rho = z * psi
-        h = psi / q  # rho / zeta
-        h1 = psi1 / q - psi * q1 / q**2
+        h1 = psi1 / q - psi * q1 / q**2  # d(rho/zeta)/dz with rho/zeta = psi/q
         U_over_rho4 = _quartic_remainder(m.V, rho)
         integrand += (0.5 * (h1 / zeta1) ** 2 + chi_z / zeta1 * rho**2 / (4 * zeta**3)
                       + U_over_rho4 * (rho / zeta) ** 4)
@@ -348,7 +347,7 @@ def brane_observables(bg, sol):
         "f_action": f_action / T**3,
     }
     # sources and vevs in units of T
-    for (dm, src_dim), name, src, vev in zip(bg._dims(), bg.source_names(), st["sources"], st["vevs"]):
+    for (_, src_dim), name, src, vev in zip(bg._dims(), bg.source_names(), st["sources"], st["vevs"]):
         suffix = "" if name == "lam" else name[3:]
         vev_dim = bg.d - src_dim
         obs["source" + suffix] = src / T**src_dim

@@ -34,20 +34,15 @@ __all__ = ["DenseSolver", "KrylovSolver", "make_solver", "assemble_dense", "jaco
 RCOND_MIN = 10 * EPS  # below this the Jacobian is treated as singular to working precision
 
 
-def _dense_ops(problem):
-    grid = problem.grid
-    return np.stack([grid.dense_operator(a) for a in problem.alphas])
-
-
 def assemble_dense(problem, A):
     """Dense Jacobian ``(size, size)`` from pointwise coefficients ``A`` (nf, nf, na, npts)."""
-    d = problem._dense_ops() if hasattr(problem, "_dense_ops") else _dense_ops(problem)
+    d = problem._dense_ops()
     nf, _, na, n = A.shape
     # the plain C loop of einsum wins for small systems, a BLAS contraction for larger
     # ones; its path is searched once per problem, not on every call
     path = False
     if nf * nf * na * n * n > 20000:
-        plan = problem._plan() if hasattr(problem, "_plan") else {}
+        plan = problem._plan()
         path = plan.get("einsum_path")
         if path is None:
             path = np.einsum_path("jikp,kpq->jpiq", A, d, optimize="greedy")[0]

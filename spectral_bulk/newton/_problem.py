@@ -181,7 +181,7 @@ class Problem:
         if len(new.grid.axes) != len(self.grid.axes) or new.grid.names != self.grid.names:
             raise ProblemDefinitionError("a regridded problem must keep the coordinate names")
         new.boundary = {}
-        for face, (key, fun) in self.boundary.items():
+        for key, fun in self.boundary.values():
             new.boundary[new.grid.resolve_face(key)] = (key, fun)
         new.alphas = new.grid.multi_indices(new.max_order)
         new._ops = None
