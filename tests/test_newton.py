@@ -6,7 +6,7 @@ import xarray as xr
 
 import spectral_bulk as sb
 from spectral_bulk.exceptions import ConvergenceError, ConvergenceWarning, ProblemDefinitionError
-from spectral_bulk.newton import MESSAGES
+from spectral_bulk.newton import MESSAGES, NewtonOptions
 
 from .problems import (
     bratu_equations,
@@ -256,17 +256,20 @@ def test_status_damping_failure_beyond_the_fold():
     assert res.status == 4 and not res.converged
 
 
-def test_status_residual_stagnation(monkeypatch):
-    import spectral_bulk.newton._newton as nm
+@pytest.mark.parametrize("workspace", ["auto", "generic"])
+def test_status_residual_stagnation(monkeypatch, workspace):
+    from spectral_bulk.newton._workspace import DenseWorkspace, GenericWorkspace
 
-    monkeypatch.setattr(nm, "residual_norm", lambda *a, **k: 1.0)
+    for cls in (DenseWorkspace, GenericWorkspace):
+        monkeypatch.setattr(cls, "backward_error", lambda *a, **k: 1.0)
     with pytest.warns(ConvergenceWarning, match="stagnates"):
-        res = sb.solve(bratu_problem(20, 1.0), 0.0)
+        res = sb.solve(bratu_problem(20, 1.0), 0.0, options=NewtonOptions(workspace=workspace))
     assert res.status == 6
 
 
-def test_status_linear_solver_failure(monkeypatch):
-    import spectral_bulk.newton._newton as nm
+@pytest.mark.parametrize("workspace", ["auto", "generic"])
+def test_status_linear_solver_failure(monkeypatch, workspace):
+    from spectral_bulk.newton._workspace import DenseWorkspace, GenericWorkspace
 
     class Broken:
         kind = "broken"
@@ -278,9 +281,10 @@ def test_status_linear_solver_failure(monkeypatch):
         def solve(self, rhs):
             return np.full_like(rhs, np.nan)
 
-    monkeypatch.setattr(nm, "make_solver", lambda *a, **k: Broken())
+    for cls in (DenseWorkspace, GenericWorkspace):
+        monkeypatch.setattr(cls, "factor", lambda *a, **k: Broken())
     with pytest.warns(ConvergenceWarning, match="linear solver"):
-        res = sb.solve(bratu_problem(12, 1.0), 0.0)
+        res = sb.solve(bratu_problem(12, 1.0), 0.0, options=NewtonOptions(workspace=workspace))
     assert res.status == 7
 
 

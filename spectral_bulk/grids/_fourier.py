@@ -118,6 +118,11 @@ def _diff_cached(n, order, parity):
             d = fourier_derivative(np.eye(n), k, "full", axis=0)
         else:
             d = _basis_matrix(fourier_nodes(n, parity), n, parity, k) @ _inverse_basis(n, parity)
+            if parity == "even":
+                # constants are in the cosine space and every derivative kills them: the
+                # negative-sum diagonal makes that exact (the standard trick)
+                np.fill_diagonal(d, 0.0)
+                np.fill_diagonal(d, -d.sum(axis=1))
         d = np.ascontiguousarray(d)
         d.setflags(write=False)
         out.append(d)

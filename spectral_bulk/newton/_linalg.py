@@ -131,14 +131,31 @@ class DenseSolver:
         # cheap screen: only a tiny pivot relative to the largest warrants the estimate
         self._suspect = info != 0 or not (np.isfinite(top) and top > 0) or d.min() <= 1e4 * EPS * top
         self._rcond = None
+        self._anorm = None
         self.fallback = None
         self.iterations = 0
+
+    @classmethod
+    def from_factors(cls, lu, piv, rscale, anorm, suspect, check=True):
+        """A solver from an LU factorisation made elsewhere (the 1-D workspace).
+
+        ``lu, piv`` are LAPACK ``getrf`` output for the row-equilibrated matrix,
+        ``rscale`` its row scale factors, ``anorm`` its 1-norm and ``suspect``
+        whether a small pivot warrants the condition estimate.
+        """
+        out = object.__new__(cls)
+        out.check, out.lu, out.piv, out.rscale = check, lu, piv, rscale
+        out.matrix = None
+        out._anorm, out._suspect, out._rcond = float(anorm), bool(suspect), None
+        out.fallback = None
+        out.iterations = 0
+        return out
 
     @property
     def rcond(self):
         """Reciprocal condition estimate in the 1-norm (LAPACK ``gecon``), computed on demand."""
         if self._rcond is None:
-            anorm = np.abs(self.matrix).sum(axis=0).max()
+            anorm = self._anorm if self._anorm is not None else np.abs(self.matrix).sum(axis=0).max()
             if not (anorm > 0 and np.isfinite(anorm)):
                 self._rcond = 0.0
             else:

@@ -17,9 +17,10 @@ import numpy as np
 
 from .._utils import EPS, emit_user_level_warning, validate_tol
 from ..exceptions import ConvergenceError, ConvergenceWarning, ProblemDefinitionError, SingularJacobianError
-from ._linalg import assemble_dense, make_solver
+from ._linalg import assemble_dense
 from ._problem import Problem
 from ._result import SolveResult
+from ._workspace import _snorm, field_weights, residual_norm, workspace
 
 __all__ = ["solve", "NewtonOptions", "MESSAGES", "check_jacobian", "initial_state", "scaled_norm",
            "residual_norm"]
@@ -73,6 +74,11 @@ class NewtonOptions:
         ``tol`` (an inexact Newton step with relative error ``eta`` changes the
         converged update by ``eta ||dx||``, so ``eta = 1e-2 tol`` keeps the final
         update accurate to well within ``tol``).
+    workspace : {"auto", "generic"}
+        ``auto`` uses the preallocated, compiled one-dimensional dense workspace
+        where it applies (1-D grid, dense LU, complex-step linearisation) and the
+        generic one otherwise; ``generic`` always uses the generic one (same
+        algorithm and results, more per-iteration overhead).
     """
 
     tol: float = 1e-10
@@ -83,6 +89,7 @@ class NewtonOptions:
     lambda_min: float = 1e-8
     linear_solver: str = "auto"
     linear_rtol: float | None = None
+    workspace: str = "auto"
 
     def validated(self):
         out = dataclasses.replace(self)
@@ -93,6 +100,8 @@ class NewtonOptions:
         out.max_iter = int(self.max_iter)
         if not 0 < self.lambda_min <= self.lambda_init <= 1:
             raise ValueError("need 0 < `lambda_min` <= `lambda_init` <= 1")
+        if self.workspace not in ("auto", "generic"):
+            raise ValueError(f"`workspace` must be 'auto' or 'generic', got {self.workspace!r}")
         if out.linear_rtol is None:
             out.linear_rtol = max(min(1e-3, 1e-2 * out.tol), 10 * EPS)
         return out
@@ -105,29 +114,9 @@ def _status_docs():
     return "\n".join(lines)
 
 
-def field_weights(problem, u):
-    """``w_f = max(||u_f||_inf, scale_f)``, the per-field size used by all norms."""
-    return np.maximum(np.abs(u.reshape(problem.nfields, -1)).max(axis=1), problem.scales)
-
-
-def _snorm(dx, w):
-    return float((np.abs(dx.reshape(w.size, -1)).max(axis=1) / w).max())
-
-
 def scaled_norm(problem, dx, u):
     """``max_f ||dx_f||_inf / max(||u_f||_inf, scale_f)``."""
     return _snorm(np.asarray(dx), field_weights(problem, np.asarray(u)))
-
-
-def residual_norm(problem, F, A, u, w=None):
-    """Componentwise backward error of the residual (see :class:`NewtonOptions`)."""
-    w = field_weights(problem, u) if w is None else w
-    R = problem.row_sums()  # (na, npts)
-    scale = np.einsum("jikp,i,kp->jp", np.abs(A), w, R)
-    F = np.abs(F.reshape(scale.shape))
-    with np.errstate(divide="ignore", invalid="ignore"):
-        r = np.where(scale > 0, F / np.where(scale > 0, scale, 1.0), F)
-    return float(r.max())
 
 
 def initial_state(problem, guess):
@@ -233,16 +222,15 @@ def solve(problem, guess, *, params=None, tol=None, max_iter=None, damping=None,
     """
     if not isinstance(problem, Problem):
         raise TypeError(f"`problem` must be a Problem, got {type(problem).__name__}")
-    opts = dataclasses.replace(options or NewtonOptions())
-    for k, v in dict(tol=tol, max_iter=max_iter, damping=damping, tail_tol=tail_tol,
-                     linear_solver=linear_solver).items():
-        if v is not None:
-            setattr(opts, k, v)
-    opts = opts.validated()
+    shortcuts = dict(tol=tol, max_iter=max_iter, damping=damping, tail_tol=tail_tol,
+                     linear_solver=linear_solver)
+    shortcuts = {k: v for k, v in shortcuts.items() if v is not None}
+    opts = dataclasses.replace(options or NewtonOptions(), **shortcuts).validated()
     t0 = time.perf_counter()
     params = problem.merged_params(params)
     u = initial_state(problem, guess)
-    res = _newton(problem, u, params, opts, first_is_input=True)
+    with np.errstate(all="ignore"):  # the callbacks' domain is checked through the residual
+        res = _newton(problem, u, params, opts, first_is_input=True)
     res.wall_time = time.perf_counter() - t0
     if not res.converged:
         if raise_on_failure:
@@ -264,14 +252,15 @@ def _newton(problem, u, params, opts, first_is_input=False):
     # the monotonicity test needs); when the step is accepted, as it is near the
     # solution, that linearisation serves the next iteration.
     reuse = problem.grid.ndim == 1
+    ws = workspace(problem, params, opts)
 
     def finish(status, state, A=None, F=None, solver=None):
-        tails = problem.grid.tail(problem.split(state), problem.scales)
+        tails = ws.tails(state)
         tail = dict(zip(problem.fields, map(float, tails)))
         if F is None:
-            F = problem.residual(state, params)
+            F = ws.residual(state)
             info["nfev"] += 1
-        r = residual_norm(problem, F, A, state) if A is not None and np.all(np.isfinite(F)) else np.nan
+        r = ws.backward_error(F, A, state) if A is not None and np.isfinite(F).all() else np.nan
         if status == 0:
             if not r <= tol:
                 status = 6
@@ -294,36 +283,37 @@ def _newton(problem, u, params, opts, first_is_input=False):
             F, A = pending
             pending = None
         else:
-            F, A = problem.linearize(u, params)
+            F, A = ws.linearize(u)
             info["nfev"] += 1
         info["njev"] += 1
-        if not (np.all(np.isfinite(F)) and np.all(np.isfinite(A))):
+        finite, w_u, rnorm = ws.prepare(u, F, A)
+        if not finite:
             if first_is_input and info["njev"] == 1:
                 problem.check(u, params)  # raises, naming the equations that are not finite
             fmt["where"] = "in the residual or its linearisation at iteration " + str(info["njev"])
             return finish(3, u, F=F)
-        w_u = field_weights(problem, u)
-        info["residual_norms"].append(residual_norm(problem, F, A, u, w_u))
+        info["residual_norms"].append(rnorm)
         try:
-            solver = make_solver(problem, A, opts.linear_solver, rtol=opts.linear_rtol)
+            solver = ws.factor(A)
             dx = -solver.solve(F)
         except SingularJacobianError:
             return finish(2, u, A=A, F=F, solver=solver)
         except (ValueError, RuntimeError) as exc:  # pragma: no cover - defensive
             fmt["why"] = str(exc)
             return finish(7, u, A=A, F=F)
-        if not np.all(np.isfinite(dx)):
+        if not np.isfinite(dx).all():
             fmt["why"] = "non-finite Newton update"
             return finish(7, u, A=A, F=F)
-        ndx = _snorm(dx, w_u)
+        ndx = ws.norm(dx, w_u)
         info["update_norms"].append(ndx)
         if ndx <= tol:
             info["damping"].append(1.0)
             return finish(0, u + dx, A=A, solver=solver)
         if opts.damping and prev is not None:
             ndx_prev, dxbar_prev, lam_prev = prev
-            denom = _snorm(dxbar_prev - dx, w_u) * ndx
-            mu = ndx_prev * _snorm(dxbar_prev, w_u) / denom * lam_prev if denom > 0 else 1.0
+            nprev, denom = ws.damping_norms(dxbar_prev, dx, 0.0, w_u)
+            denom *= ndx
+            mu = ndx_prev * nprev / denom * lam_prev if denom > 0 else 1.0
             lam = min(1.0, mu)
         reduced = False  # the step may be enlarged once, and only if it was never reduced
         while True:
@@ -332,11 +322,11 @@ def _newton(problem, u, params, opts, first_is_input=False):
                 return finish(4, u, A=A, F=F, solver=solver)
             trial = u + lam * dx
             if reuse and opts.damping:
-                Ft, At = problem.linearize(trial, params)
+                Ft, At = ws.linearize(trial)
             else:
-                Ft, At = problem.residual(trial, params), None
+                Ft, At = ws.residual(trial), None
             info["nfev"] += 1
-            if not np.all(np.isfinite(Ft)):
+            if not np.isfinite(Ft).all():
                 if not opts.damping:
                     fmt["where"] = f"after an undamped step at iteration {info['njev']}"
                     return finish(3, u, A=A, F=F, solver=solver)
@@ -347,8 +337,8 @@ def _newton(problem, u, params, opts, first_is_input=False):
                 dxbar = None
                 break
             dxbar = -solver.solve(Ft)
-            theta = _snorm(dxbar, w_u) / ndx
-            dd = _snorm(dxbar - (1 - lam) * dx, w_u)
+            nbar, dd = ws.damping_norms(dxbar, dx, lam, w_u)
+            theta = nbar / ndx
             mu_p = 0.5 * ndx * lam**2 / dd if dd > 0 else np.inf
             if theta >= 1 - lam / 4:
                 lam = min(mu_p, lam / 2)
@@ -362,11 +352,12 @@ def _newton(problem, u, params, opts, first_is_input=False):
             break
         info["damping"].append(lam)
         u = trial
-        if At is not None and np.all(np.isfinite(At)):
-            pending = (Ft, At)
-        if dxbar is not None and lam == 1.0 and _snorm(dxbar, field_weights(problem, u)) <= tol:
+        if At is not None:
+            pending = (Ft, At)  # a non-finite At is caught when it is prepared
+        nbar = ws.norm(dxbar, ws.weights(u)) if dxbar is not None and lam == 1.0 else np.inf
+        if nbar <= tol:
             # the simplified-Newton correction is already below tolerance
-            info["update_norms"].append(_snorm(dxbar, field_weights(problem, u)))
+            info["update_norms"].append(nbar)
             if pending is not None:
                 return finish(0, u + dxbar, A=pending[1], solver=solver)
             return finish(0, u + dxbar, A=A, solver=solver)

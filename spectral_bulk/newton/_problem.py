@@ -31,37 +31,45 @@ _FD_STEP = np.finfo(float).eps ** (1 / 3)  # optimal relative step of central di
 
 
 class Namespace:
-    """Attribute access to named arrays with a clear error for unknown names."""
+    """Attribute access to named arrays with a clear error for unknown names.
 
-    __slots__ = ("_data", "_what")
+    The names live in the instance dictionary, so that a known name is an ordinary
+    (fast) attribute lookup and only an unknown one reaches :meth:`__getattr__`.
+    """
 
     def __init__(self, data, what):
-        object.__setattr__(self, "_data", data)
-        object.__setattr__(self, "_what", what)
+        d = object.__getattribute__(self, "__dict__")
+        d.update(data)
+        d["_Namespace__what"] = what
+
+    def _names(self):
+        return [k for k in object.__getattribute__(self, "__dict__") if k != "_Namespace__what"]
 
     def __getattr__(self, name):
-        data = object.__getattribute__(self, "_data")
-        try:
-            return data[name]
-        except KeyError:
-            what = object.__getattribute__(self, "_what")
-            known = ", ".join(sorted(data)) if len(data) < 40 else ", ".join(sorted(data)[:40]) + ", ..."
-            raise ProblemDefinitionError(f"unknown {what} {name!r}; known: {known}") from None
+        if name.startswith("__"):
+            raise AttributeError(name)
+        what = object.__getattribute__(self, "__dict__")["_Namespace__what"]
+        names = sorted(Namespace._names(self))
+        known = ", ".join(names) if len(names) < 40 else ", ".join(names[:40]) + ", ..."
+        raise ProblemDefinitionError(f"unknown {what} {name!r}; known: {known}") from None
 
     def __getitem__(self, name):
+        d = object.__getattribute__(self, "__dict__")
+        if name in d and name != "_Namespace__what":
+            return d[name]
         return self.__getattr__(name)
 
     def __contains__(self, name):
-        return name in object.__getattribute__(self, "_data")
+        return name in Namespace._names(self)
 
     def __setattr__(self, name, value):
         raise AttributeError("namespaces passed to callbacks are read-only")
 
     def keys(self):
-        return object.__getattribute__(self, "_data").keys()
+        return Namespace._names(self)
 
     def __repr__(self):
-        return f"Namespace({', '.join(self.keys())})"
+        return f"Namespace({', '.join(Namespace._names(self))})"
 
 
 def _callable_name(fun):
@@ -351,13 +359,7 @@ class Problem:
         with np.errstate(all="ignore"):
             if self._batched:
                 try:
-                    plan = self._plan()
-                    if "perturb" not in plan:
-                        t = np.zeros((nf, na, nslot, 1), dtype=complex)
-                        s = np.arange(nslot)
-                        t[s // na, s % na, s, 0] = 1j * _H
-                        plan["perturb"] = t
-                    pert = dv[:, :, None, :] + plan["perturb"]
+                    pert = dv[:, :, None, :] + self._plan_perturbation()
                     rows = self._evaluate(pert, params, complex_step=True)
                 except ProblemDefinitionError:
                     raise
@@ -365,14 +367,21 @@ class Problem:
                     # the callbacks do not broadcast over a batch axis: evaluate slot by slot
                     self._batched = False
             if not self._batched:
-                rows = np.empty((nf, nslot, npts), dtype=complex)
+                rows = np.empty((nf, nslot + 1, npts), dtype=complex)
                 for s in range(nslot):
                     pert = dv.astype(complex)
                     pert[s // na, s % na] += 1j * _H
                     rows[:, s] = self._evaluate(pert, params, complex_step=True)
-        F = rows[:, 0, :].real.ravel()
-        A = (rows.imag / _H).reshape(nf, nf, na, npts)
-        return F, A
+                rows[:, nslot] = self._evaluate(dv.astype(complex), params, complex_step=True)
+        return split_rows(rows, nf, na, npts)
+
+    def _plan_perturbation(self):
+        """Complex-step perturbations ``(nf, na, nslot + 1, 1)``: one slot per field and
+        derivative, and a last, unperturbed slot that gives the residual itself."""
+        plan = self._plan()
+        if "perturb" not in plan:
+            plan["perturb"] = complex_step_perturbation(self.nfields, len(self.alphas))
+        return plan["perturb"]
 
     def _linearize_fd(self, dv, params):
         nf, na, npts = dv.shape
@@ -415,6 +424,30 @@ class Problem:
                 f"the residual is not finite at the initial guess in the equation(s) of {bad}"
             )
         return F
+
+
+def complex_step_perturbation(nf, na):
+    """Perturbations of the batched complex-step evaluation (see :meth:`Problem.linearize`)."""
+    nslot = nf * na
+    t = np.zeros((nf, na, nslot + 1, 1), dtype=complex)
+    s = np.arange(nslot)
+    t[s // na, s % na, s, 0] = 1j * _H
+    return t
+
+
+def split_rows(rows, nf, na, npts):
+    """Residual and coefficients from the batched complex-step rows ``(nf, nslot + 1, npts)``.
+
+    The last slot is unperturbed: for residuals that are real-analytic where they are
+    evaluated its imaginary part is exactly zero.  A non-zero imaginary part there means
+    the state left the real domain of the equations (``sqrt`` or ``log`` of a negative
+    number, say), where complex arithmetic would silently continue: the residual is NaN
+    at those points, as a real evaluation would give.
+    """
+    base = rows[:, nf * na, :]
+    F = np.where(base.imag == 0, base.real, np.nan).ravel()
+    A = (rows[:, : nf * na, :].imag * (1 / _H)).reshape(nf, nf, na, npts)
+    return F, A
 
 
 def _as_param(name, value):

@@ -1,0 +1,291 @@
+"""Compiled kernels of the one-dimensional dense Newton workspace.
+
+One kernel does, in a single pass, what the generic path does with a dozen small
+numpy calls per Newton iteration: the finiteness check of the residual and of its
+pointwise linearisation, the per-field weights, the componentwise backward error
+(:func:`~spectral_bulk.newton.residual_norm`), the dense Jacobian assembly
+(:func:`~spectral_bulk.newton.assemble_dense`) and its row equilibration
+(:class:`~spectral_bulk.newton.DenseSolver`).  At the sizes of one-dimensional
+problems the numpy calls cost microseconds each, far more than their arithmetic.
+
+Each compiled kernel has a numpy reference here (``*_reference``) computing the
+same quantities with the generic path's own functions; the tests compare them.
+numba is imported when a kernel is first needed, so importing the package stays
+cheap.
+"""
+
+import numpy as np
+
+__all__ = ["prepare_dense", "prepare_dense_reference", "pivot_ratio", "scaled_norm_kernel",
+           "damping_norms", "chebyshev_tails", "split_rows_kernel",
+           "field_weights_kernel"]
+
+_COMPILED = {}
+
+
+def _prepare_dense_py(A, D, R, F, u, scales, J, w, rscale, assemble):
+    """Body of :func:`prepare_dense` (compiled by numba; plain Python is the fallback).
+
+    Parameters
+    ----------
+    A : (nf, nf, na, n) float
+        Pointwise coefficients ``dF_j[p] / d(D^k U_i)[p]``.
+    D : (na, n, n) float
+        Dense derivative operators (``D[0]`` is the identity).
+    R : (na, n) float
+        Absolute row sums of the operators.
+    F : (nf * n,) float
+        Residual.
+    u : (nf * n,) float
+        State.
+    scales : (nf,) float
+        Per-field size floors.
+    J : (nf * n, nf * n) float, Fortran order
+        Output: row-equilibrated Jacobian.
+    w : (nf,) float
+        Output: per-field weights ``max(max|u_f|, scale_f)``.
+    rscale : (nf * n,) float
+        Output: row scale factors (``1 / max_q |J[r, q]|``, 1 for zero rows).
+    assemble : bool
+        Whether to assemble ``J`` (``False``: only the checks and norms).
+
+    Returns
+    -------
+    finite : bool
+        Whether ``F`` and ``A`` are finite (when not, nothing else is computed).
+    rnorm : float
+        Componentwise backward error of ``F``.
+    anorm : float
+        1-norm of the equilibrated Jacobian (for the condition estimate).
+    """
+    nf, _, na, n = A.shape
+    for r in range(nf * n):
+        if not np.isfinite(F[r]):
+            return False, np.nan, np.nan
+    for j in range(nf):
+        for i in range(nf):
+            for k in range(na):
+                for p in range(n):
+                    if not np.isfinite(A[j, i, k, p]):
+                        return False, np.nan, np.nan
+    for i in range(nf):
+        m = scales[i]
+        for p in range(n):
+            a = abs(u[i * n + p])
+            if a > m:
+                m = a
+        w[i] = m
+    rnorm = 0.0
+    for j in range(nf):
+        for p in range(n):
+            s = 0.0
+            for i in range(nf):
+                for k in range(na):
+                    s += abs(A[j, i, k, p]) * w[i] * R[k, p]
+            f = abs(F[j * n + p])
+            r = f / s if s > 0 else f
+            if r > rnorm:
+                rnorm = r
+    if not assemble:
+        return True, rnorm, np.nan
+    for j in range(nf):
+        for i in range(nf):
+            for q in range(n):
+                for p in range(n):
+                    J[j * n + p, i * n + q] = A[j, i, 0, p] * D[0, p, q]
+            for k in range(1, na):
+                for q in range(n):
+                    for p in range(n):
+                        J[j * n + p, i * n + q] += A[j, i, k, p] * D[k, p, q]
+    size = nf * n
+    for r in range(size):
+        rscale[r] = 0.0
+    for q in range(size):
+        for r in range(size):
+            a = abs(J[r, q])
+            if a > rscale[r]:
+                rscale[r] = a
+    for r in range(size):
+        rscale[r] = 1.0 / rscale[r] if rscale[r] > 0 else 1.0
+    anorm = 0.0
+    for q in range(size):
+        c = 0.0
+        for r in range(size):
+            J[r, q] *= rscale[r]
+            c += abs(J[r, q])
+        if c > anorm:
+            anorm = c
+    return True, rnorm, anorm
+
+
+def _pivot_ratio_py(lu):
+    """``min |U_ii| / max |U_ii|`` of an LU factor (0 for a zero or non-finite diagonal)."""
+    n = lu.shape[0]
+    lo, hi = np.inf, 0.0
+    for i in range(n):
+        d = abs(lu[i, i])
+        if not np.isfinite(d):
+            return 0.0
+        lo = min(lo, d)
+        hi = max(hi, d)
+    return lo / hi if hi > 0 else 0.0
+
+
+def _scaled_norm_py(dx, w):
+    """``max_f max_p |dx_f[p]| / w_f`` (the update norm of :class:`NewtonOptions`)."""
+    nf = w.shape[0]
+    n = dx.shape[0] // nf
+    out = 0.0
+    for i in range(nf):
+        m = 0.0
+        for p in range(n):
+            a = abs(dx[i * n + p])
+            if a > m:
+                m = a
+        out = max(out, m / w[i])
+    return out
+
+
+def _damping_norms_py(a, b, lam, w):
+    """``(norm(a), norm(a - (1 - lam) b))`` in the scaled norm: both damping-test norms."""
+    nf = w.shape[0]
+    n = a.shape[0] // nf
+    na, nd = 0.0, 0.0
+    c = 1.0 - lam
+    for i in range(nf):
+        ma, md = 0.0, 0.0
+        for p in range(n):
+            x = abs(a[i * n + p])
+            y = abs(a[i * n + p] - c * b[i * n + p])
+            if x > ma:
+                ma = x
+            if y > md:
+                md = y
+        na = max(na, ma / w[i])
+        nd = max(nd, md / w[i])
+    return na, nd
+
+
+def _chebyshev_tails_py(u, C, scales, out):
+    """Tail measure of each field (as :meth:`Grid.tail` on a 1-D Chebyshev grid).
+
+    ``C`` is the values -> coefficients matrix; the measure is the largest of the
+    last ``max(2, n // 8)`` coefficients over ``max(max|c|, max|u_f|, scale_f)``.
+    """
+    nf = scales.shape[0]
+    n = C.shape[0]
+    m = max(2, n // 8)
+    for i in range(nf):
+        floor = scales[i]
+        for p in range(n):
+            floor = max(floor, abs(u[i * n + p]))
+        top, tail = 0.0, 0.0
+        for k in range(n):
+            c = 0.0
+            for p in range(n):
+                c += C[k, p] * u[i * n + p]
+            c = abs(c)
+            top = max(top, c)
+            if k >= n - m:
+                tail = max(tail, c)
+        denom = max(top, floor)
+        out[i] = tail / denom if denom > 0 else 0.0
+
+
+def _split_rows_py(rows, inv_h, F, A):
+    """Compiled body of :func:`~spectral_bulk.newton._problem.split_rows` (same output).
+
+    ``rows`` is ``(nf, nslot + 1, n)`` complex; ``F`` ``(nf * n,)`` and ``A``
+    ``(nf, nf, na, n)`` are filled.
+    """
+    nf, ns1, n = rows.shape
+    na = (ns1 - 1) // nf
+    for j in range(nf):
+        for p in range(n):
+            b = rows[j, ns1 - 1, p]
+            F[j * n + p] = b.real if b.imag == 0 else np.nan
+        for s in range(ns1 - 1):
+            i, k = s // na, s % na
+            for p in range(n):
+                A[j, i, k, p] = rows[j, s, p].imag * inv_h
+
+
+def _field_weights_py(u, scales, w):
+    """``w_f = max(max_p |u_f[p]|, scale_f)`` (as :func:`~spectral_bulk.newton.field_weights`)."""
+    nf = scales.shape[0]
+    n = u.shape[0] // nf
+    for i in range(nf):
+        m = scales[i]
+        for p in range(n):
+            m = max(m, abs(u[i * n + p]))
+        w[i] = m
+
+
+def _compiled(name, fun):
+    if name not in _COMPILED:
+        import numba
+
+        _COMPILED[name] = numba.njit(cache=True, nogil=True)(fun)
+    return _COMPILED[name]
+
+
+def prepare_dense(A, D, R, F, u, scales, J, w, rscale, assemble=True):
+    """Compiled :func:`_prepare_dense_py` (see there for the arguments)."""
+    return _compiled("prepare_dense", _prepare_dense_py)(A, D, R, F, u, scales, J, w, rscale, assemble)
+
+
+def pivot_ratio(lu):
+    """Compiled :func:`_pivot_ratio_py`."""
+    return _compiled("pivot_ratio", _pivot_ratio_py)(lu)
+
+
+def scaled_norm_kernel(dx, w):
+    """Compiled :func:`_scaled_norm_py`."""
+    return _compiled("scaled_norm", _scaled_norm_py)(dx, w)
+
+
+def field_weights_kernel(u, scales, w):
+    """Compiled :func:`_field_weights_py`."""
+    _compiled("field_weights", _field_weights_py)(u, scales, w)
+
+
+def split_rows_kernel(rows, inv_h, F, A):
+    """Compiled :func:`_split_rows_py`."""
+    _compiled("split_rows", _split_rows_py)(rows, inv_h, F, A)
+
+
+def damping_norms(a, b, lam, w):
+    """Compiled :func:`_damping_norms_py`."""
+    return _compiled("damping_norms", _damping_norms_py)(a, b, float(lam), w)
+
+
+def chebyshev_tails(u, C, scales, out):
+    """Compiled :func:`_chebyshev_tails_py`."""
+    return _compiled("chebyshev_tails", _chebyshev_tails_py)(u, C, scales, out)
+
+
+def prepare_dense_reference(problem, A, F, u):
+    """What :func:`prepare_dense` computes, by the generic path's numpy functions.
+
+    Returns
+    -------
+    finite : bool
+    rnorm : float
+    w : ndarray
+    J : ndarray
+        The row-equilibrated Jacobian.
+    rscale : ndarray
+    anorm : float
+    """
+    from ._linalg import assemble_dense
+    from ._newton import field_weights, residual_norm
+
+    if not (np.all(np.isfinite(F)) and np.all(np.isfinite(A))):
+        return False, np.nan, None, None, None, np.nan
+    w = field_weights(problem, u)
+    rnorm = residual_norm(problem, F, A, u, w)
+    J = assemble_dense(problem, A)
+    rmax = np.abs(J).max(axis=1)
+    rscale = np.where(rmax > 0, 1.0 / np.where(rmax > 0, rmax, 1.0), 1.0)
+    J = J * rscale[:, None]
+    return True, rnorm, w, J, rscale, float(np.abs(J).sum(axis=0).max())

@@ -1,0 +1,266 @@
+"""The one-dimensional dense workspace against the generic one, and its compiled kernels
+against their numpy references.
+
+The generic workspace is the reference: both run the same Newton algorithm, so on every
+problem they must give the same status, the same number of iterations and the same
+solution to rounding.  The exact solutions used are those of ``tests/problems.py``
+(Gelfand-Bratu closed form, common practice).
+"""
+
+import numpy as np
+import pytest
+
+import spectral_bulk as sb
+from spectral_bulk.exceptions import ConvergenceWarning, ProblemDefinitionError
+from spectral_bulk.newton import NewtonOptions
+from spectral_bulk.newton import _kernels as K
+from spectral_bulk.newton._problem import split_rows
+from spectral_bulk.newton._workspace import (DenseWorkspace, GenericWorkspace, _snorm, field_weights,
+                                             workspace)
+
+from .problems import bratu_equations, bratu_exact, dirichlet_zero
+
+GENERIC = NewtonOptions(workspace="generic")
+
+
+def bratu(n=20, lam=1.0):
+    return sb.Problem(sb.Chebyshev(n, (0.0, 1.0)), ["u"], bratu_equations,
+                      {"left": dirichlet_zero, "right": dirichlet_zero}, {"lam": lam})
+
+
+def coupled(n=18):
+    # u'' - u v + g1 = 0, v'' + u' - sinh(v) + g2 = 0, w' = u with manufactured solution
+    # u = cos x, v = x^2/2, w = sin x on [-1, 2] (common practice: the forcing is built
+    # from the chosen solution); w is first order, so its equation holds at the right end
+    def eqs(c, f, p):
+        x = c.x
+        g1 = np.cos(x) * (1 + x**2 / 2)
+        g2 = np.sin(x) + np.sinh(x**2 / 2) - 1
+        return [f.u_xx - f.u * f.v + g1, f.v_xx + f.u_x - np.sinh(f.v) + g2, f.w_x - f.u]
+
+    def left(c, f, p):  # Dirichlet u, Robin v, Dirichlet w
+        return [f.u - np.cos(-1.0), f.v_x + f.v - (-1.0 + 0.5), f.w - np.sin(-1.0)]
+
+    def right(c, f, p):  # Neumann u and v; w's own equation holds there
+        return [f.u_x + np.sin(2.0), f.v_x - 2.0, None]
+
+    def exact(x):
+        return {"u": np.cos(x), "v": x**2 / 2, "w": np.sin(x)}
+
+    grid = sb.Chebyshev(n, (-1.0, 2.0))
+    return sb.Problem(grid, ["u", "v", "w"], eqs, {"left": left, "right": right}, {}), exact
+
+
+def both(problem, guess, **kw):
+    a = sb.solve(problem, guess, **kw)
+    b = sb.solve(problem, guess, options=NewtonOptions(workspace="generic", **kw))
+    return a, b
+
+
+def assert_same_run(a, b, atol=1e-12):
+    assert a.status == b.status, (a.message, b.message)
+    assert a.iterations == b.iterations and a.nfev == b.nfev
+    np.testing.assert_allclose(a.state, b.state, rtol=0, atol=atol)
+    np.testing.assert_allclose(a.update_norms, b.update_norms, rtol=1e-6, atol=1e-14)
+    np.testing.assert_allclose(a.damping, b.damping, rtol=1e-12)
+    for f in a.tail:
+        assert abs(a.tail[f] - b.tail[f]) <= 1e-14
+    assert abs(a.residual - b.residual) <= 1e-14 or (np.isnan(a.residual) and np.isnan(b.residual))
+
+
+# ------------------------------------------------------------------ selection
+def test_workspace_selection():
+    opts = NewtonOptions().validated()
+    assert type(workspace(bratu(), {"lam": 1.0}, opts)) is DenseWorkspace
+    assert type(workspace(bratu(), {"lam": 1.0}, GENERIC.validated())) is GenericWorkspace
+    fd = sb.Problem(sb.Chebyshev(10, (0.0, 1.0)), ["u"], bratu_equations,
+                    {"left": dirichlet_zero, "right": dirichlet_zero}, {"lam": 1.0},
+                    linearization="finite-difference")
+    assert type(workspace(fd, {"lam": 1.0}, opts)) is GenericWorkspace
+    grid2 = sb.TensorGrid(sb.Fourier(6, 2 * np.pi, "x"), sb.Chebyshev(6, (0.0, 1.0), "y"))
+    p2 = sb.Problem(grid2, ["u"], lambda c, f, p: f.u_yy - f.u, {"y=0": dirichlet_zero})
+    assert type(workspace(p2, {}, opts)) is GenericWorkspace
+    with pytest.raises(ValueError, match="workspace"):
+        NewtonOptions(workspace="fast").validated()
+
+
+# ------------------------------------------------------------ same algorithm
+@pytest.mark.parametrize("lam,branch,n,guess", [(1.0, "lower", 24, 0.0), (3.0, "lower", 24, 0.0),
+                                                (3.0, "upper", 32, lambda x: 8 * x * (1 - x)),
+                                                (1.0, "upper", 48, lambda x: 20 * x * (1 - x))])
+def test_bratu_both_branches_same_run(lam, branch, n, guess):
+    # closed form of the Gelfand-Bratu problem (common practice), see tests/problems.py
+    a, b = both(bratu(n, lam), guess)
+    assert a.converged
+    assert_same_run(a, b, atol=1e-11)
+    x = a.grid.coords["x"]
+    assert np.abs(a.fields["u"] - bratu_exact(x, lam, branch)).max() < 1e-9
+
+
+def test_coupled_system_with_free_end_same_run():
+    problem, exact = coupled()
+    a, b = both(problem, lambda x: {"u": 1 - x**2 / 3, "v": 0.4 * (1 + x), "w": x})
+    assert a.converged
+    assert_same_run(a, b, atol=1e-11)
+    x = a.grid.coords["x"]
+    for f, v in exact(x).items():
+        assert np.abs(a.fields[f] - v).max() < 1e-9
+
+
+@pytest.mark.parametrize("case", ["diverges", "singular", "iteration_limit", "tail"])
+def test_failures_same_status(case):
+    kw = {}
+    if case == "diverges":  # beyond the fold there is no solution
+        problem, guess, status = bratu(20, 4.0), 0.0, 4
+        kw = {"max_iter": 200}
+    elif case == "singular":  # u'' = 0 with two Neumann conditions: constants are a null space
+        problem = sb.Problem(sb.Chebyshev(12, (0.0, 1.0)), ["u"], lambda c, f, p: f.u_xx,
+                             {"left": lambda c, f, p: [f.u_x], "right": lambda c, f, p: [f.u_x]})
+        guess, status = 1.0, 2
+    elif case == "iteration_limit":
+        problem, guess, status = bratu(20, 3.0), 0.0, 1
+        kw = {"max_iter": 2}
+    else:  # a steep layer on 10 points is not resolved
+        problem = sb.Problem(sb.Chebyshev(10, (-1.0, 1.0)), ["u"],
+                             lambda c, f, p: 1e-3 * f.u_xx - f.u + np.tanh(c.x / 0.05),
+                             {"left": lambda c, f, p: [f.u + 1], "right": lambda c, f, p: [f.u - 1]})
+        guess, status = 0.0, 5
+    with pytest.warns(ConvergenceWarning):
+        a, b = both(problem, guess, **kw)
+    assert a.status == b.status == status
+    assert a.iterations == b.iterations
+    if status != 2:
+        np.testing.assert_allclose(a.state, b.state, rtol=0, atol=1e-10 * max(1, np.abs(b.state).max()))
+    if status == 2:
+        assert a.condition < 1e-12 and b.condition < 1e-12
+
+
+def test_callbacks_without_batch_support_fall_back():
+    # a residual that indexes its argument as one line of points cannot take a batch axis
+    def eqs(c, f, p):
+        u = f.u
+        if u.ndim != 1:
+            raise ValueError("one line of points only")
+        return [f.u_xx + p.lam * np.exp(u)]
+
+    problem = sb.Problem(sb.Chebyshev(16, (0.0, 1.0)), ["u"], eqs,
+                         {"left": dirichlet_zero, "right": dirichlet_zero}, {"lam": 1.0})
+    a = sb.solve(problem, 0.0)
+    assert a.converged and problem._batched is False
+    ref = sb.solve(bratu(16, 1.0), 0.0)
+    np.testing.assert_allclose(a.state, ref.state, atol=1e-13)
+
+
+def test_bad_callback_output_still_named():
+    problem = sb.Problem(sb.Chebyshev(10, (0.0, 1.0)), ["u"], lambda c, f, p: [f.u_xx, f.u],
+                         {"left": dirichlet_zero, "right": dirichlet_zero})
+    with pytest.raises(ProblemDefinitionError, match="returned 2 entries, expected 1"):
+        sb.solve(problem, 0.0)
+    problem = sb.Problem(sb.Chebyshev(10, (0.0, 1.0)), ["u"], lambda c, f, p: [f.u_xx + 1],
+                         {"left": lambda c, f, p: [np.ones(3)], "right": dirichlet_zero})
+    with pytest.raises(ProblemDefinitionError, match="boundary condition 'left'"):
+        sb.solve(problem, 0.0)
+
+
+# ------------------------------------------------- leaving the real domain
+@pytest.mark.parametrize("ws", ["auto", "generic"])
+def test_linearisation_reports_a_state_outside_the_real_domain(ws):
+    # sqrt of a negative number: complex arithmetic would return a finite, meaningless
+    # residual; the linearisation must say NaN there, as a real evaluation does
+    problem = sb.Problem(sb.Chebyshev(9, (0.0, 1.0)), ["u"], lambda c, f, p: f.u_xx - np.sqrt(f.u),
+                         {"left": dirichlet_zero, "right": dirichlet_zero})
+    x = problem.grid.coords["x"]
+    u = np.cos(3 * x)  # negative for x > pi/6
+    opts = NewtonOptions(workspace=ws).validated()
+    F, A = workspace(problem, problem.merged_params(), opts).linearize(u)
+    real = problem.residual(u)
+    inside = x[1:-1] < np.pi / 6
+    assert np.all(np.isnan(F[1:-1][~inside])) and np.all(np.isnan(real[1:-1][~inside]))
+    np.testing.assert_allclose(F[1:-1][inside], real[1:-1][inside], rtol=1e-15)
+
+
+@pytest.mark.parametrize("ws", ["auto", "generic"])
+def test_damped_newton_stays_in_the_real_domain(ws):
+    # u'' = 20 sqrt(u), u = 1e-3 at both ends: full steps from this guess leave u >= 0;
+    # the damping must see that (a NaN residual) and shorten them
+    problem = sb.Problem(sb.Chebyshev(14, (0.0, 1.0)), ["u"], lambda c, f, p: f.u_xx - 20 * np.sqrt(f.u),
+                         {"left": lambda c, f, p: [f.u - 1.0], "right": lambda c, f, p: [f.u - 1.0]})
+    res = sb.solve(problem, lambda x: 1.0 + 0.9 * np.sin(np.pi * x), options=NewtonOptions(workspace=ws),
+                   tail_tol=1e-6)
+    assert np.all(res.fields["u"] > 0)
+    assert res.status in (0, 5)
+    assert np.abs(problem.residual(res.state)).max() < 1e-8
+
+
+# --------------------------------------------------------------- kernels
+def _random_case(seed, nf=3, n=11):
+    rng = np.random.default_rng(seed)
+    problem = sb.Problem(sb.Chebyshev(n, (-0.5, 2.0)), [f"u{i}" for i in range(nf)],
+                         lambda c, f, p: [f.u0] * nf)
+    na = len(problem.alphas)
+    A = rng.normal(size=(nf, nf, na, n)) * rng.choice([0.0, 1e-3, 1.0, 1e4], size=(nf, nf, na, n))
+    F = rng.normal(size=nf * n)
+    u = rng.normal(size=nf * n) * 10.0 ** rng.integers(-9, 3, size=nf).repeat(n)
+    problem.scales[:] = 10.0 ** rng.integers(-8, 1, size=nf)
+    return problem, A, F, u
+
+
+@pytest.mark.parametrize("seed", range(4))
+@pytest.mark.parametrize("compiled", [True, False])
+def test_prepare_kernel_matches_numpy_reference(seed, compiled):
+    problem, A, F, u = _random_case(seed)
+    nf, n = problem.nfields, problem.grid.size
+    size = nf * n
+    J, w, rs = np.empty((size, size), order="F"), np.empty(nf), np.empty(size)
+    fun = K.prepare_dense if compiled else K._prepare_dense_py
+    ok, rnorm, anorm = fun(A, np.ascontiguousarray(problem._dense_ops()), problem.row_sums(), F, u,
+                           problem.scales, J, w, rs, True)
+    ok_r, rnorm_r, w_r, J_r, rs_r, anorm_r = K.prepare_dense_reference(problem, A, F, u)
+    assert ok and ok_r
+    np.testing.assert_allclose(w, w_r, rtol=1e-15)
+    np.testing.assert_allclose(rnorm, rnorm_r, rtol=1e-13)
+    np.testing.assert_allclose(rs, rs_r, rtol=1e-14)
+    np.testing.assert_allclose(J, J_r, rtol=1e-13, atol=1e-15)
+    np.testing.assert_allclose(anorm, anorm_r, rtol=1e-13)
+    A[1, 2, 1, 3] = np.nan
+    assert not fun(A, np.ascontiguousarray(problem._dense_ops()), problem.row_sums(), F, u,
+                   problem.scales, J, w, rs, True)[0]
+
+
+@pytest.mark.parametrize("compiled", [True, False])
+def test_small_kernels_match_numpy(compiled):
+    problem, A, F, u = _random_case(7)
+    nf, na, n = problem.nfields, len(problem.alphas), problem.grid.size
+    pick = (lambda c, p: c) if compiled else (lambda c, p: p)
+    w = field_weights(problem, u)
+    wk = np.empty(nf)
+    pick(K.field_weights_kernel, K._field_weights_py)(u, problem.scales, wk)
+    np.testing.assert_array_equal(wk, w)
+    b = np.random.default_rng(1).normal(size=u.size)
+    assert pick(K.scaled_norm_kernel, K._scaled_norm_py)(F, w) == pytest.approx(_snorm(F, w), rel=1e-15)
+    na_, nd_ = pick(K.damping_norms, K._damping_norms_py)(F, b, 0.3, w)
+    assert na_ == pytest.approx(_snorm(F, w), rel=1e-15)
+    assert nd_ == pytest.approx(_snorm(F - 0.7 * b, w), rel=1e-14)
+    # tails against the grid's own (DCT) route
+    C = np.ascontiguousarray(problem.grid.axes[0].coeffs(np.eye(n), axis=0))
+    x = problem.grid.coords["x"]
+    vals = np.concatenate([np.exp(-x), np.tanh(8 * x), 1e-9 * np.cos(x) + 1e-12 * x**9])
+    out = np.empty(nf)
+    pick(K.chebyshev_tails, K._chebyshev_tails_py)(vals, C, problem.scales, out)
+    ref = problem.grid.tail(vals.reshape(nf, n), problem.scales)
+    np.testing.assert_allclose(out, ref, rtol=1e-9, atol=1e-16)
+    # complex-step rows -> residual and coefficients
+    rng = np.random.default_rng(3)
+    rows = rng.normal(size=(nf, nf * na + 1, n)) + 1j * rng.normal(size=(nf, nf * na + 1, n)) * 1e-30
+    rows[:, -1, :].imag = 0.0
+    rows[1, -1, 4] += 1e-3j  # out of the real domain at one point
+    Fk, Ak = np.empty(nf * n), np.empty((nf, nf, na, n))
+    pick(K.split_rows_kernel, K._split_rows_py)(rows, 1e30, Fk, Ak)
+    Fr, Ar = split_rows(rows, nf, na, n)
+    np.testing.assert_array_equal(np.isnan(Fk), np.isnan(Fr))
+    assert np.isnan(Fk[n + 4]) and np.isnan(Fk).sum() == 1
+    np.testing.assert_allclose(Fk[~np.isnan(Fk)], Fr[~np.isnan(Fr)], rtol=0)
+    np.testing.assert_allclose(Ak, Ar, rtol=1e-15)
+    lu = np.triu(rng.normal(size=(6, 6))) + np.diag([5, 1, 2, 3, 4, 0.5])
+    d = np.abs(np.diag(lu))
+    assert pick(K.pivot_ratio, K._pivot_ratio_py)(lu) == pytest.approx(d.min() / d.max(), rel=1e-15)
