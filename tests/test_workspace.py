@@ -264,3 +264,19 @@ def test_small_kernels_match_numpy(compiled):
     lu = np.triu(rng.normal(size=(6, 6))) + np.diag([5, 1, 2, 3, 4, 0.5])
     d = np.abs(np.diag(lu))
     assert pick(K.pivot_ratio, K._pivot_ratio_py)(lu) == pytest.approx(d.min() / d.max(), rel=1e-15)
+
+
+@pytest.mark.parametrize("compiled", [True, False])
+def test_norm_kernels_propagate_nan_like_numpy(compiled):
+    w = np.array([1.0, 2.0])
+    for bad, where in [(np.nan, 1), (np.inf, 1), (np.nan, 0), (np.nan, 2)]:
+        x = np.array([0.1, 0.05, 0.3, 0.2])
+        x[where] = bad
+        norm = K.scaled_norm_kernel if compiled else K._scaled_norm_py
+        damp = K.damping_norms if compiled else K._damping_norms_py
+        ref = _snorm(x, w)
+        got = norm(x, w)
+        assert (np.isnan(ref) and np.isnan(got)) or ref == got
+        got2 = damp(np.zeros(4), x, 0.5, w)[1]
+        ref2 = _snorm(-0.5 * x, w)
+        assert (np.isnan(ref2) and np.isnan(got2)) or ref2 == got2

@@ -140,9 +140,11 @@ def _scaled_norm_py(dx, w):
         m = 0.0
         for p in range(n):
             a = abs(dx[i * n + p])
-            if a > m:
+            if a > m or a != a:  # a NaN sticks, as in numpy's max
                 m = a
-        out = max(out, m / w[i])
+        r = m / w[i]
+        if r > out or r != r:
+            out = r
     return out
 
 
@@ -157,12 +159,14 @@ def _damping_norms_py(a, b, lam, w):
         for p in range(n):
             x = abs(a[i * n + p])
             y = abs(a[i * n + p] - c * b[i * n + p])
-            if x > ma:
+            if x > ma or x != x:  # a NaN sticks, as in numpy's max
                 ma = x
-            if y > md:
+            if y > md or y != y:
                 md = y
-        na = max(na, ma / w[i])
-        nd = max(nd, md / w[i])
+        if ma / w[i] > na or ma != ma:
+            na = ma / w[i]
+        if md / w[i] > nd or md != md:
+            nd = md / w[i]
     return na, nd
 
 

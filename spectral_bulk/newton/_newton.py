@@ -301,10 +301,10 @@ def _newton(problem, u, params, opts, first_is_input=False):
         except (ValueError, RuntimeError) as exc:  # pragma: no cover - defensive
             fmt["why"] = str(exc)
             return finish(7, u, A=A, F=F)
-        if not np.isfinite(dx).all():
+        ndx = ws.norm(dx, w_u)  # NaN or inf when dx is not finite
+        if not np.isfinite(ndx):
             fmt["why"] = "non-finite Newton update"
             return finish(7, u, A=A, F=F)
-        ndx = ws.norm(dx, w_u)
         info["update_norms"].append(ndx)
         if ndx <= tol:
             info["damping"].append(1.0)
