@@ -24,6 +24,23 @@ Boundary conditions
 
 Dimensionless inputs are in units of ``T``: ``lam = lambda/T^{d - Delta}``, ``k = k/T``,
 ``mu = mu/T``, ``alpha = alpha/T``; they are hit exactly because ``T`` is fixed.
+
+Rational falloffs (radial power)
+--------------------------------
+When ``Delta_-`` is rational but not an integer, the near-boundary expansions are power
+series in ``z^{1/p}`` and the brane is solved in ``u = z^{1/p}`` on the affine grid
+``u in [0, 1]`` (boundary ``u = 0``, horizon ``u = 1``; d = 3, one neutral scalar, no
+axions, tortoise gauge).  ``p`` is ``model.powers``, lowered to the denominator of
+``2 Delta_-`` when the potential (and phase metric) is even, since then every exponent is
+a sum of ``3 - 2 Delta_-``, ``2 Delta_-``, 2 and 3.  With ``a = Delta_-``, ``n = (3 - 2a) p``::
+
+    ds^2 = z^-2 [ -f A dt^2 + A dz^2 / f + B dx^2 + C dy^2 ],   z = u^p,  f = 1 - u^{3p},
+    dz^2 = p^2 u^{2p-2} du^2,   phi = u^{ap} psi(u),   psi = lambda + beta u^n + ...
+
+Boundary rows: ``A = B = C = 1`` and ``psi = lambda`` (standard) or ``psi^(n)(0)/n! = J/(3-2a)``
+(alternative, ``n <= 2``); horizon rows as above.  ``s``, ``T``, the source and ``<O>`` are
+reported; the stress tensor (the ``u^{3p}`` Taylor coefficient of the metric) is not
+(``docs/physics/black_branes.md`` section i).  The integer case (``p = 1``) is unchanged.
 """
 
 import math
@@ -39,10 +56,30 @@ from ..newton import NewtonOptions, Problem, SolveResult
 
 __all__ = ["Brane", "BlackBrane", "QLatticeBrane", "AxionBrane", "BackgroundSolution", "BraneSolution"]
 
-def _field_series(f, name, prec=3):
-    vals = [getattr(f, name), getattr(f, name + "_z"), getattr(f, name + "_zz")]
+def _field_series(f, name, prec=3, coord="z"):
+    vals = [getattr(f, name), getattr(f, name + "_" + coord), getattr(f, name + "_" + 2 * coord)]
     vals = np.broadcast_arrays(*[np.asarray(v) for v in vals])
     return Series(np.stack([vals[0], vals[1], vals[2] / 2]), 0)
+
+
+def _minimal_power(model, a, p):
+    """Smallest radial power for an even potential (and phase metric), else ``p``.
+
+    With ``V`` (and ``Phi``) even in the scalar, the exponents of ``psi = z^{-a} phi`` and of
+    the metric are sums of ``3 - 2a``, ``2a``, 2 and 3, all multiples of ``1/q`` with ``q`` the
+    denominator of ``2a``; a smaller power keeps the boundary data at low Taylor order.
+    """
+    import fractions
+
+    from ..models._models import _taylor_coefficients
+
+    coeffs = [_taylor_coefficients(lambda r: model.V(r), 5)]
+    if isinstance(model, QLatticeModel):
+        coeffs.append(_taylor_coefficients(lambda r: model.Phi(r), 5))
+    if any(abs(c[m]) > 1e-12 for c in coeffs for m in (1, 3, 5)):
+        return p
+    q = fractions.Fraction(2 * a).limit_denominator(2 * p).denominator
+    return q if p % q == 0 else p
 
 
 class BackgroundSolution(SolveResult):
@@ -114,11 +151,11 @@ class Brane:
         self.power = model.powers([quantization]) if model.nscalars else 1
         if isinstance(model, QLatticeModel):
             model.check_expansions(quantization, lattice=self.lattice)
-        if model.nscalars and self.power != 1:
+        if model.nscalars and self.power is None:
             raise ProblemDefinitionError(
                 f"model {model.name}: falloffs {[(s.delta_minus, s.delta_plus) for s in model.uv]} "
-                f"need the radial power z = u^{self.power}; only integer dimensions are supported "
-                "by the brane backgrounds so far"
+                "are irrational: no radial power z = u^p makes the near-boundary expansion "
+                "analytic, and the brane backgrounds need one"
             )
         self.n, self.n_max, self.tol = int(n), int(n_max), float(tol)
         # the stress tensor needs third boundary derivatives: resolve the fields until their
@@ -128,10 +165,61 @@ class Brane:
         if gauge not in ("tortoise", "deturck"):
             raise ProblemDefinitionError(f"`gauge` must be 'tortoise' or 'deturck', got {gauge!r}")
         self.gauge = gauge
+        #: radial coordinate of the grid: z (integer falloffs) or u = z^{1/p}
+        self.coord = "z"
+        if model.nscalars and self.power != 1:
+            self._setup_power(quantization)
         metric = ["A", "B", "C"] if gauge == "tortoise" else ["A", "S", "B", "C"]
         self.fields = metric + self.scalar_fields + (["at"] if self.charged else [])
         self._problems = {}
         self._last = None
+
+    def _setup_power(self, quantization):
+        """Check and record the data of the ``z = u^p`` formulation (rational ``Delta_-``)."""
+        m, p = self.model, self.power
+        where = f"model {m.name}: rational falloffs need the radial power z = u^{p}, which"
+        if self.d != 3:
+            raise ProblemDefinitionError(f"{where} is implemented for d = 3 (got d = {self.d})")
+        if m.nscalars != 1:
+            raise ProblemDefinitionError(f"{where} is implemented for one scalar (got {m.nscalars})")
+        if m.charged or self.n_axions:
+            raise ProblemDefinitionError(
+                f"{where} is implemented without gauge field and axions")
+        if self.gauge != "tortoise":
+            raise ProblemDefinitionError(f"{where} is implemented in the tortoise gauge only "
+                                         f"(got gauge={self.gauge!r})")
+        if quantization == "mixed":
+            raise ProblemDefinitionError(f"{where} supports standard and alternative quantization, "
+                                         "not 'mixed'")
+        a = m.uv[0].delta_minus
+        self.power = p = _minimal_power(m, a, p)
+        where = f"model {m.name}: rational falloffs need the radial power z = u^{p}, which"
+        if not 0 < a < 1.5:
+            raise ProblemDefinitionError(
+                f"{where} needs 0 < Delta_- < 3/2 (a relevant source); got Delta_- = {a:.6g}")
+        # logarithms: no power of z makes the expansion analytic
+        causes = QLatticeModel.log_warnings(m, lattice=self.lattice)
+        if causes:
+            raise ProblemDefinitionError(
+                f"model {m.name}: {causes[0]}; a logarithm is not analytic in any u = z^(1/p), so "
+                "the brane cannot be solved to spectral accuracy")
+        c = 3 - 2 * a
+        self.alpha = a
+        ap = a * p
+        self.rho_power = int(round(ap)) if abs(ap - round(ap)) < 1e-9 else ap  # phi = u^{a p} psi
+        self.n_vev = int(round(c * p))         # psi = lambda + beta u^n + ...
+        if abs(self.n_vev - c * p) > 1e-9:
+            raise ProblemDefinitionError(f"{where}: a p = {a * p:.6g} is not an integer (internal error)")
+        if quantization == "alternative" and self.n_vev > 2:
+            raise ProblemDefinitionError(
+                f"{where}: alternative quantization fixes the u^{self.n_vev} coefficient of psi; "
+                "only n <= 2 is implemented (choose Delta_- > 1 with 3 - 2 Delta_- = n/p, n <= 2)")
+        self.coord = "u"
+
+    def horizon_metric(self, sol):
+        """``(A, S, B, C)`` at the horizon (``S = A`` in the tortoise gauge)."""
+        fl = sol.fields
+        return fl["A"][-1], fl["S" if self.gauge == "deturck" else "A"][-1], fl["B"][-1], fl["C"][-1]
 
     # ----------------------------------------------------------------- layout
     @property
@@ -178,8 +266,8 @@ class Brane:
         """The :class:`Problem` on ``n`` points (cached)."""
         n = int(n or self.n)
         if n not in self._problems:
-            grid = Chebyshev(n, (0.0, 1.0), name="z")
-            bc = {"z=0": self._uv_rows, "z=1": self._horizon_rows}
+            grid = Chebyshev(n, (0.0, 1.0), name=self.coord)
+            bc = {f"{self.coord}=0": self._uv_rows, f"{self.coord}=1": self._horizon_rows}
             # scalars may be tiny (small sources): measure them relative to themselves
             self._problems[n] = Problem(grid, self.fields, self._equations, bc, self.default_params(),
                                         scales={f: 1e-8 for f in self.scalar_fields},
@@ -188,7 +276,9 @@ class Brane:
 
     def _matter(self, z, fs, p):
         scal = []
-        for (dm, _), name in zip(self._dims(), self.scalar_fields):
+        if self.power != 1:  # z is the coordinate u here: phi = u^{a p} psi
+            scal.append(z**self.rho_power * fs[self.scalar_fields[0]])
+        for (dm, _), name in zip(self._dims() if self.power == 1 else (), self.scalar_fields):
             scal.append(z**dm * fs[name] if dm else fs[name])
         phase = None
         if self.lattice:
@@ -202,6 +292,8 @@ class Brane:
         return MatterContent(scal, phase, axions, at)
 
     def _metric(self, z, fs):
+        if self.power != 1:
+            return self._metric_power(z, fs)
         d = self.d
         f = 1 - z**d
         S = fs["A"] if self.gauge == "tortoise" else fs["S"]
@@ -212,18 +304,33 @@ class Brane:
             ref[(i, i)] = 1 / z**2
         return g, (ref if self.gauge == "deturck" else None)
 
+    def _metric_power(self, u, fs):
+        """Metric in ``u`` (``z = u^p``, ``dz = p u^{p-1} du``; module notes)."""
+        p = self.power
+        z = u**p
+        f = 1 - z**3
+        A, B, C = fs["A"], fs["B"], fs["C"]
+        g = {(0, 0): -1 * (f * A) / z**2, (1, 1): A * (p * p) / (u**2 * f), (2, 2): B / z**2,
+             (3, 3): C / z**2}
+        return g, None
+
     def evaluate(self, z, fs, p):
         """All equations as series at points ``z`` (a Series) for field series ``fs``."""
         g, ref = self._metric(z, fs)
         return einstein_deturck(g, ref, self.model, self._matter(z, fs, p), radial=1, dim=self.d + 1)
 
     def _equations(self, c, f, p):
-        z = np.asarray(c.z)
+        z = np.asarray(getattr(c, self.coord))
         zz = np.where((z <= 0) | (z >= 1), 0.5, z)  # ends carry boundary rows, not these
-        batch = np.broadcast_shapes(np.shape(f.A), zz.shape)
+        batch = np.broadcast_shapes(np.shape(getattr(f, self.fields[0])), zz.shape)
         zs = coordinate_series(np.broadcast_to(zz, batch))
-        fs = {name: _field_series(f, name) for name in self.fields}
+        fs = {name: _field_series(f, name, coord=self.coord) for name in self.fields}
         out = self.evaluate(zs, fs, p)
+        if self.power != 1:
+            # rows divided by their leading boundary powers (metric u^{2ap}, scalar u^{ap})
+            E = out["E"]
+            return [E[(0, 0)].coefficient(0), E[(2, 2)].coefficient(0), E[(3, 3)].coefficient(0),
+                    out["scalar"][0].coefficient(0)]
         E = out["E"]
         rows = [E[(0, 0)].coefficient(0)]
         if self.gauge == "deturck":
@@ -236,9 +343,9 @@ class Brane:
         return rows
 
     def _horizon_rows(self, c, f, p):
-        batch = np.shape(f.A)
+        batch = np.shape(getattr(f, self.fields[0]))
         zs = coordinate_series(np.ones(batch))
-        fs = {name: _field_series(f, name) for name in self.fields}
+        fs = {name: _field_series(f, name, coord=self.coord) for name in self.fields}
         out = self.evaluate(zs, fs, p)
         E = out["E"]
         tt = E[(0, 0)]
@@ -252,7 +359,22 @@ class Brane:
             rows.append(f.at)
         return rows
 
+    def _uv_rows_power(self, f, p):
+        a, n = self.alpha, self.n_vev
+        (_, src_dim), = self._dims()
+        value = p[self.source_names()[0]] * self.T**src_dim
+        psi = f.psi
+        rows = [f.A - 1, f.B - 1, f.C - 1]
+        if self.quantization == "standard":
+            rows.append(psi - value)
+        else:  # J = c beta with beta the u^n coefficient of psi
+            coef = f.psi_u if n == 1 else f.psi_uu / 2
+            rows.append(coef - value / (3 - 2 * a))
+        return rows
+
     def _uv_rows(self, c, f, p):
+        if self.power != 1:
+            return self._uv_rows_power(f, p)
         rows = [f.A - 1] + ([f.S - 1] if self.gauge == "deturck" else []) + [f.B - 1, f.C - 1]
         for (dm, src_dim), name, src in zip(self._dims(), self.scalar_fields, self.source_names()):
             value = p[src] * self.T**src_dim
@@ -276,6 +398,9 @@ class Brane:
 
     # ------------------------------------------------------------------ guess
     def _trivial_guess(self, params):
+        if self.power != 1:
+            return self._trivial_guess_power(params)
+
         def g(z):
             out = {"A": 1 + 0 * z, "B": 1 + 0 * z, "C": 1 + 0 * z}
             if self.gauge == "deturck":
@@ -286,6 +411,20 @@ class Brane:
             if self.charged:
                 out["at"] = params.get("mu", 0.0) * self.T * (1 - z)
             return out
+        return g
+
+    def _trivial_guess_power(self, params):
+        a, n = self.alpha, self.n_vev
+        (_, src_dim), = self._dims()
+        val = params.get(self.source_names()[0], 0.0) * self.T**src_dim
+
+
+        def g(u):
+            if self.quantization == "standard":
+                psi = val * (1 - u)
+            else:
+                psi = val / (3 - 2 * a) * u**n * (1 - n * u / (n + 1))
+            return {"A": 1 + 0 * u, "B": 1 + 0 * u, "C": 1 + 0 * u, "psi": psi}
         return g
 
     # ------------------------------------------------------------------- solve
@@ -483,6 +622,10 @@ class QLatticeBrane(Brane):
                     f"standard bulk solution, got {component_quantization!r} with {quantization!r}"
                 )
             model.uv[0].check("alternative")
+            if self.power != 1:
+                raise ProblemDefinitionError(
+                    "component_quantization is implemented for m^2 = -2 (Delta = 1, 2), not for "
+                    f"the fractional falloffs of model {model.name}")
             if self.d != 3:
                 raise ProblemDefinitionError("component_quantization is implemented for d = 3")
         self.component_quantization = component_quantization

@@ -19,6 +19,15 @@ on shell (it is ``3 sum g3 = -2 lambda rho_2``), so its residual certifies the n
 solution.  ``T`` and ``s`` come from the horizon; the free energy is computed twice: from
 ``energy - T s - mu rho`` and from the renormalised Euclidean action (bulk integral in the
 areal coordinate plus boundary terms), and their difference is part of the certificate.
+
+Rational falloffs (one scalar, ``3/4 < Delta_- = a < 3/2``, even potential, solved in
+``u = z^{1/p}``): counterterm ``(a/2) phi^2``; ``psi = lambda + beta u^n + ...`` with
+``n = (3 - 2a) p`` gives ``<O> = (3 - 2a) beta`` (standard) or ``J = (3 - 2a) beta``,
+``<O> = -lambda`` (alternative), reported with ``s`` and ``T``.  The stress tensor needs the
+``u^{3p}`` Taylor coefficient of the metric, which the Chebyshev series does not resolve
+(measured ~1e-5 for p = 2), so it is NaN, ``renormalised = 0`` and the certificate fails
+with that reason (:func:`renormalisation_obstruction`); the formulas it would use are
+derived in ``docs/physics/black_branes.md`` section i.
 """
 
 import math
@@ -28,7 +37,8 @@ import numpy as np
 from ..gravity import Series, coordinate_series
 
 __all__ = ["brane_observables", "taylor_at_boundary", "CERTIFICATE_KEYS", "BRANE_CERTIFICATE",
-           "certificate_failures"]
+           "certificate_failures", "renormalisation_available", "renormalisation_obstruction",
+           "RENORMALISATION_WINDOW"]
 
 #: Keys of the certificate part of the observables.
 CERTIFICATE_KEYS = ("residual", "tail", "ward_trace", "thermo", "py_f", "action", "deturck",
@@ -45,7 +55,10 @@ def certificate_failures(bg, obs):
     from ._walls import WALL_CERTIFICATE
 
     limits = WALL_CERTIFICATE if type(bg).__name__.endswith("Wall") else BRANE_CERTIFICATE
-    bad = [] if obs.get("renormalised", 1) else ["renormalisation not implemented for this model"]
+    bad = []
+    if not obs.get("renormalised", 1):
+        why = renormalisation_obstruction(bg) if hasattr(bg, "horizon_metric") else None
+        bad.append("renormalisation not implemented for this model" + (f" ({why})" if why else ""))
     for key, lim in limits.items():
         v = obs.get(key, np.nan)
         if isinstance(v, (float, int, np.floating)) and np.isfinite(v) and v > lim:
@@ -291,16 +304,75 @@ def _gauge_checks(bg, sol):
     return deturck, constraint
 
 
+#: Window of Delta_- (open interval) where the counterterms
+#: ``-int sqrt(-gamma) [4 + R[gamma] + (Delta_-/2) phi^2]`` make the action finite and no
+#: logarithm appears (d = 3, even potential): Delta_- <= 3/4 needs a phi^4 counterterm and
+#: logarithms appear at Delta_- = 3/4 and 3/2.
+RENORMALISATION_WINDOW = (0.75, 1.5)
+
+
+def renormalisation_obstruction(bg):
+    """Why the renormalised observables of ``bg`` are not available (``None`` when they are).
+
+    Covered: d = 3 with scalars of m^2 = -2 in ``z`` (Delta = 2 or 1), and one scalar with a
+    rational ``3/4 < Delta_- < 3/2`` solved in ``u = z^{1/p}`` whose potential (and phase
+    metric) is even to the orders that matter.
+    """
+
+    if bg.d != 3:
+        return f"holographic renormalisation is implemented for d = 3 (got d = {bg.d})"
+    if getattr(bg, "power", 1) == 1:
+        bad = [sc for sc in bg.model.uv if abs(sc.m2 + 2) > 1e-9]
+        if not bad:
+            return None
+        sc = bad[0]
+        return (f"scalar {sc.name!r}: m^2 = {sc.m2:.6g} (Delta_- = {sc.delta_minus:.6g}); integer "
+                "falloffs are renormalised for m^2 = -2 only, rational ones need "
+                f"{RENORMALISATION_WINDOW[0]:g} < Delta_- < {RENORMALISATION_WINDOW[1]:g}")
+    why = _fractional_vev_obstruction(bg)
+    if why:
+        return why
+    # the vev is available; the stress tensor is not (docs/physics/black_branes.md section i)
+    return (f"the stress tensor of the rational falloff Delta_- = {bg.alpha:.6g} sits at the "
+            f"u^{3 * bg.power} boundary Taylor coefficient of the metric (z = u^{bg.power}), which "
+            "the Chebyshev series resolves only to ~1e-5; s, T, the source and <O> are reported")
+
+
+def _fractional_vev_obstruction(bg):
+    """Why ``<O> = (3 - 2a) beta`` is not the renormalised vev of a rational falloff (or None)."""
+    from ..models import QLatticeModel
+    from ..models._models import _taylor_coefficients
+
+    a = bg.alpha
+    lo, hi = RENORMALISATION_WINDOW
+    if not lo < a < hi:
+        return (f"Delta_- = {a:.6g} is outside {lo:g} < Delta_- < {hi:g}: the counterterms "
+                "4 + R + (Delta_-/2) phi^2 do not suffice there (a phi^4 counterterm is needed)")
+    V = _taylor_coefficients(lambda r: bg.model.V(r), 5)
+    odd = [f"V{m}" for m in (1, 3, 5) if abs(V[m]) > 1e-12]
+    if isinstance(bg.model, QLatticeModel):
+        Phi = _taylor_coefficients(lambda r: bg.model.Phi(r), 5)
+        odd += [f"Phi{m}" for m in (3, 5) if abs(Phi[m]) > 1e-12]
+    if odd:
+        return (f"model {bg.model.name}: odd Taylor terms {odd} in the potential / phase metric "
+                "generate falloffs (and a phi^3 counterterm) the formulas do not cover")
+    return None
+
+
 def renormalisation_available(bg):
-    """True where the renormalised stress tensor and vevs are implemented (d = 3, m^2 = -2)."""
-    return bg.d == 3 and all(abs(sc.m2 + 2) < 1e-9 for sc in bg.model.uv)
+    """True where the renormalised stress tensor and vevs are implemented.
+
+    d = 3 with m^2 = -2 scalars (integer falloffs), or one scalar with rational
+    ``3/4 < Delta_- < 3/2`` and an even potential (solved in ``u = z^{1/p}``); see
+    :func:`renormalisation_obstruction` for the reason in the other cases.
+    """
+    return renormalisation_obstruction(bg) is None
 
 
 def _horizon_only(bg, sol):
     """Observables that need no renormalisation, for models outside its coverage."""
     T = bg.T
-    Bh, Ch = sol.fields["B"][-1], sol.fields["C"][-1]
-    Ah, Sh = sol.fields["A"][-1], sol.fields["S" if bg.gauge == "deturck" else "A"][-1]
+    Ah, Sh, Bh, Ch = bg.horizon_metric(sol)
     deturck, constraint = _gauge_checks(bg, sol)
     nan = float("nan")
     obs = {"T": 1.0, "s": 4 * math.pi * math.sqrt(Bh * Ch) / T**2, "f": nan, "energy": nan,
@@ -308,6 +380,8 @@ def _horizon_only(bg, sol):
     for name in bg.source_names():
         obs["source" + ("" if name == "lam" else name[3:])] = float(sol.params[name])
         obs["vev" + ("" if name == "lam" else name[3:])] = nan
+    if getattr(bg, "power", 1) != 1 and _fractional_vev_obstruction(bg) is None:
+        obs["vev"] = _fractional_vev(bg, sol)
     for name in bg.scalar_fields:
         obs["rho_h" + ("" if name == "psi" else name[3:])] = float(sol.fields[name][-1])
     obs.update({"residual": float(sol.residual), "tail": float(max(sol.tail.values())),
@@ -316,20 +390,35 @@ def _horizon_only(bg, sol):
     return obs
 
 
+def _fractional_vev(bg, sol):
+    """``<O>/T^Delta`` of a rational falloff solved in ``u = z^{1/p}`` (3/4 < Delta_- < 3/2).
+
+    ``psi = lambda + beta u^n + ...`` with ``n = (3 - 2a) p``: standard ``<O> = (3 - 2a) beta``
+    (counterterm ``(a/2) phi^2``), alternative ``J = (3 - 2a) beta``, ``<O> = -lambda``
+    (docs/physics/black_branes.md section i).
+    """
+    a, n = bg.alpha, bg.n_vev
+    psi = taylor_at_boundary(sol, bg.scalar_fields[0], order=n)
+    if bg.quantization == "standard":
+        return float((3 - 2 * a) * psi[n] / bg.T ** (3 - a))
+    return float(-psi[0] / bg.T**a)
+
+
 def brane_observables(bg, sol):
     """Dimensionless observables (units of T) and certificate of a brane solution.
 
     The renormalised stress tensor, vevs and free energy are implemented for d = 3 with
     scalars of m^2 = -2 (Delta = 2 or 1); for other models only the horizon quantities
     (``s``, ``rho_h``) and the gauge certificate are returned, the rest is NaN and
-    ``renormalised = 0`` (which fails the certificate instead of reporting wrong numbers).
+    ``renormalised = 0`` (which fails the certificate instead of reporting wrong numbers;
+    :func:`renormalisation_obstruction` gives the reason).  Rational falloffs with
+    ``3/4 < Delta_- < 3/2`` (solved in ``u = z^{1/p}``) also report the source and ``<O>``.
     """
     if not renormalisation_available(bg):
         return _horizon_only(bg, sol)
     T = bg.T
     st = _stress_tensor(bg, sol)
-    Bh, Ch = sol.fields["B"][-1], sol.fields["C"][-1]
-    Ah, Sh = sol.fields["A"][-1], sol.fields["S" if bg.gauge == "deturck" else "A"][-1]
+    Ah, Sh, Bh, Ch = bg.horizon_metric(sol)
     s = 4 * math.pi * math.sqrt(Bh * Ch)
     T_sol = T * math.sqrt(Ah / Sh)
     f_thermo = st["energy"] - T * s - st["mu"] * st["charge"]
