@@ -18,7 +18,7 @@ import numpy as np
 
 __all__ = ["prepare_dense", "prepare_dense_reference", "pivot_ratio", "scaled_norm_kernel",
            "damping_norms", "chebyshev_tails", "split_rows_kernel",
-           "field_weights_kernel"]
+           "field_weights_kernel", "fill_batch"]
 
 _COMPILED = {}
 
@@ -225,6 +225,25 @@ def _field_weights_py(u, scales, w):
         w[i] = m
 
 
+def _fill_batch_py(u, dstack, h, buf):
+    """Derivatives of the state on every complex-step slot (the batch of the linearisation).
+
+    ``buf[i, k, s, p] = (D^k u_i)[p] + i h [s == i * na + k]``, with ``dstack`` the
+    transposed derivative operators side by side (``u_i @ dstack`` gives all of them) and
+    the last slot unperturbed; as ``(u @ dstack).reshape(...) + perturbation``.
+    """
+    nf, na, ns1, n = buf.shape
+    for i in range(nf):
+        for k in range(na):
+            for p in range(n):
+                acc = 0.0
+                for q in range(n):
+                    acc += u[i * n + q] * dstack[q, k * n + p]
+                for s in range(ns1):
+                    buf[i, k, s, p] = acc
+                buf[i, k, i * na + k, p] = complex(acc, h)
+
+
 def _compiled(name, fun):
     if name not in _COMPILED:
         import numba
@@ -251,6 +270,11 @@ def scaled_norm_kernel(dx, w):
 def field_weights_kernel(u, scales, w):
     """Compiled :func:`_field_weights_py`."""
     _compiled("field_weights", _field_weights_py)(u, scales, w)
+
+
+def fill_batch(u, dstack, h, buf):
+    """Compiled :func:`_fill_batch_py`."""
+    _compiled("fill_batch", _fill_batch_py)(u, dstack, h, buf)
 
 
 def split_rows_kernel(rows, inv_h, F, A):

@@ -35,9 +35,9 @@ import scipy.linalg as sla
 
 from ..exceptions import ProblemDefinitionError
 from ._kernels import (chebyshev_tails, damping_norms, pivot_ratio, prepare_dense, scaled_norm_kernel,
-                       split_rows_kernel, field_weights_kernel)
+                       split_rows_kernel, field_weights_kernel, fill_batch)
 from ._linalg import DenseSolver, make_solver
-from ._problem import _H, Namespace, complex_step_perturbation
+from ._problem import _H, Namespace
 
 __all__ = ["GenericWorkspace", "DenseWorkspace", "workspace"]
 
@@ -134,18 +134,20 @@ class DenseWorkspace(GenericWorkspace):
     def _linearize(self, u):
         c, pr = self.c, self.problem
         nf, na, n = c["nf"], c["na"], c["n"]
-        buf = c["buf"]
-        np.add((u @ c["dstack"]).reshape(nf, na, 1, n), c["perturb"], out=buf)
-        rows = np.empty((nf, nf * na + 1, n), dtype=complex)
+        fill_batch(u, c["dstack"], _H, c["buf"])
+        rows = c["rowbuf"]  # consumed below: F and A are fresh arrays
         out = pr.equations(c["coords"], c["f"], self.p)
-        eq = out if _well_formed(out, nf, c["target"]) else pr._normalise(out, c["eq_what"], n, c["batch"])
-        for i, e in enumerate(eq):
-            if e is None:
-                raise ProblemDefinitionError(
-                    f"equations returned None for field {pr.fields[i]!r}; "
-                    "None is only meaningful in boundary conditions"
-                )
-            rows[i] = e
+        if _well_formed(out, nf, c["target"]):
+            for i in range(nf):
+                rows[i] = out[i]
+        else:
+            for i, e in enumerate(pr._normalise(out, c["eq_what"], n, c["batch"])):
+                if e is None:
+                    raise ProblemDefinitionError(
+                        f"equations returned None for field {pr.fields[i]!r}; "
+                        "None is only meaningful in boundary conditions"
+                    )
+                rows[i] = e
         for fun, cb, fns, sl, what, target in c["faces"]:
             bc = fun(cb, fns, self.p)
             if not _well_formed(bc, nf, target):
@@ -207,8 +209,8 @@ def _cached(problem):
     if "workspace" not in plan:
         nf, na, n = problem.nfields, len(problem.alphas), problem.grid.size
         nslot = nf * na + 1
-        perturb = complex_step_perturbation(nf, na)
         buf = np.zeros((nf, na, nslot, n), dtype=complex)
+        rowbuf = np.empty((nf, nslot, n), dtype=complex)
         names = plan["names"]
         # one point per end in 1-D; both ends share one call when they share the callback
         # (the conditions are pointwise); basic slices keep the namespaces views of `buf`
@@ -224,7 +226,7 @@ def _cached(problem):
             what = "boundary condition " + ", ".join(repr(key) for key, _ in ends)
             faces.append((fun, cb, fns, sl, what, (nslot, len(pts))))
         plan["workspace"] = {
-            "nf": nf, "na": na, "n": n, "batch": (nslot,), "perturb": perturb, "buf": buf,
+            "nf": nf, "na": na, "n": n, "batch": (nslot,), "buf": buf, "rowbuf": rowbuf,
             "dstack": plan["dstack"], "coords": plan["coords"], "faces": faces,
             "f": Namespace({nm: buf[i, k] for nm, i, k in names}, "field or derivative"),
             "dense": np.ascontiguousarray(problem._dense_ops()), "rows": problem.row_sums(),
