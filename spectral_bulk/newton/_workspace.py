@@ -163,7 +163,7 @@ class DenseWorkspace(GenericWorkspace):
     def prepare(self, u, F, A):
         c = self.c
         w = np.empty(c["nf"])
-        finite, rnorm, self.anorm = prepare_dense(A, c["dense"], c["rows"], F, u, self.problem.scales,
+        finite, rnorm, self.anorm = prepare_dense(A, c["dense"], c["rowsums"], F, u, self.problem.scales,
                                                   self.J, w, self.rscale)
         return finite, (w if finite else None), rnorm
 
@@ -193,8 +193,8 @@ class DenseWorkspace(GenericWorkspace):
     def backward_error(self, F, A, u):
         c = self.c
         w = np.empty(c["nf"])
-        finite, rnorm, _ = prepare_dense(A, c["dense"], c["rows"], F, u, self.problem.scales,
-                                         self.J, w, self.rscale, False)
+        _, rnorm, _ = prepare_dense(A, c["dense"], c["rowsums"], F, u, self.problem.scales,
+                                    self.J, w, self.rscale, False)
         return rnorm
 
     def tails(self, u):
@@ -229,7 +229,7 @@ def _cached(problem):
             "nf": nf, "na": na, "n": n, "batch": (nslot,), "buf": buf, "rowbuf": rowbuf,
             "dstack": plan["dstack"], "coords": plan["coords"], "faces": faces,
             "f": Namespace({nm: buf[i, k] for nm, i, k in names}, "field or derivative"),
-            "dense": np.ascontiguousarray(problem._dense_ops()), "rows": problem.row_sums(),
+            "dense": np.ascontiguousarray(problem._dense_ops()), "rowsums": problem.row_sums(),
             "eq_what": f"equations {problem.name!r}", "target": (nslot, n),
             "coeffs": np.ascontiguousarray(problem.grid.axes[0].coeffs(np.eye(n), axis=0)),
         }
