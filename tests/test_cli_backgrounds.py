@@ -27,6 +27,17 @@ def test_solve_qlattice_brane_config(tmp_path, capsys):
         assert ds.attrs["converged"] == 1 and "obs_s" in ds.attrs and "[background]" in ds.attrs["config"]
 
 
+def test_brane_config_can_skip_the_extended_precision_refinement(tmp_path, capsys):
+    cfg = tmp_path / "double.toml"
+    cfg.write_text('[background]\nkind = "qlattice_brane"\nextended_precision = false\n'
+                   '[model]\nbuiltin = "mass2"\n[params]\nlam = 0.5\nk = 1.0\n')
+    out = tmp_path / "double.nc"
+    code, stdout, _ = run(["solve", str(cfg), "-o", str(out)], capsys)
+    assert code == 0
+    with xr.open_dataset(out) as ds:
+        assert ds.attrs["obs_extended_precision"] == 0
+
+
 def test_follow_wall_config_and_show(tmp_path, capsys):
     cfg = tmp_path / "wall.toml"
     cfg.write_text(textwrap.dedent("""
@@ -64,6 +75,10 @@ def test_singular_homogeneous_flow_exits_nonzero(tmp_path, capsys):
      "unknown parameter"),
     ('[background]\nkind = "qlattice_brane"\nresolution = 3\n[model]\nbuiltin = "mass2"\n',
      "unknown key `background.resolution`"),
+    ('[background]\nkind = "qlattice_wall"\nextended_precision = false\n[model]\nbuiltin = "mass2"\n',
+     "`background.extended_precision` applies to branes"),
+    ('[background]\nkind = "qlattice_brane"\nextended_precision = 1\n[model]\nbuiltin = "mass2"\n',
+     "`background.extended_precision`"),
 ])
 def test_bad_background_config_is_one_line(tmp_path, capsys, text, expected):
     cfg = tmp_path / "bad.toml"

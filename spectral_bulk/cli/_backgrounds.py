@@ -47,7 +47,7 @@ __all__ = ["build_background", "solve_background_config", "follow_background_con
 
 SECTIONS = {"title", "background", "model", "params", "follow", "output"}
 BACKGROUND_KEYS = {"kind": str, "quantization": str, "n": int, "tol": float, "n_max": int,
-                   "cutoff": float, "coupling": str}
+                   "cutoff": float, "coupling": str, "extended_precision": bool}
 MODEL_KEYS = {"builtin": str, "file": str, "potential": str, "phase_metric": str,
               "gauge_coupling": str, "scalars": list, "axions": int}
 FOLLOW_KEYS = {"param": str, "stop": float, "step": float, "max_points": int, "targets": list,
@@ -85,6 +85,10 @@ def build_background(cfg, path):
     if kind not in KINDS:
         raise ConfigError(f"{path}: `background.kind` = {kind!r} is not one of {', '.join(KINDS)}")
     opts = {k: sec[k] for k in ("n", "tol", "n_max") if k in sec}
+    if "extended_precision" in sec:
+        if not kind.endswith("_brane"):
+            raise ConfigError(f"{path}: `background.extended_precision` applies to branes, not {kind!r}")
+        opts["extended"] = sec["extended_precision"]
     if kind == "axion_brane" and "model" not in cfg:
         return AxionBrane(**opts)
     model = _model(cfg, path)

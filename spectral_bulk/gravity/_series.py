@@ -431,7 +431,8 @@ def constant_series(value, prec):
 def coordinate_series(u, prec=6):
     """The exact series ``u + d`` of a coordinate around each of the points ``u``."""
     u = np.asarray(u)
-    c = np.zeros((prec,) + u.shape, dtype=u.dtype if np.iscomplexobj(u) else float)
+    # complex (complex step) and wider real types (extended precision) are kept
+    c = np.zeros((prec,) + u.shape, dtype=u.dtype if np.issubdtype(u.dtype, np.inexact) else float)
     c[0] = u
     c[1] = 1.0
     return Series(c, 0)

@@ -192,6 +192,33 @@ class Chebyshev(Basis):
     def end_value(self, label):
         return self.domain[0] if label == "left" else self.domain[1]
 
+    def extended(self, order=2, dtype=np.longdouble):
+        """Points and differentiation matrices in a wider floating type (affine maps only).
+
+        Used to evaluate residuals beyond double precision (see
+        :func:`spectral_bulk.newton.polish`).
+
+        Returns
+        -------
+        points : ndarray, shape (n,)
+        mats : tuple of ndarray
+            Physical-coordinate differentiation matrices of orders 1..``order``.
+
+        Raises
+        ------
+        NotImplementedError
+            For a non-affine coordinate map.
+        """
+        if not isinstance(self.map, AffineMap):
+            raise NotImplementedError("extended precision needs an affine Chebyshev grid")
+        a, b = (np.asarray(v, dtype=dtype) for v in self.domain)
+        xi = cheb_nodes(self.n, dtype)
+        points = a + (b - a) * (xi + 1) / 2
+        points[0], points[-1] = a, b
+        s = 2 / (b - a)
+        dxi = cheb_diff_matrices(self.n, order, dtype)
+        return points, tuple(s ** (k + 1) * dxi[k] for k in range(order))
+
     def _diff_impl(self, order):
         dxi = cheb_diff_matrices(self.n, order)
         if isinstance(self.map, AffineMap):

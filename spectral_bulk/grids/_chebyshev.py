@@ -36,13 +36,21 @@ def _check_n(n):
     return n
 
 
-def cheb_nodes(n):
+def _pi(dtype):
+    """pi in the floating type ``dtype`` (``np.pi`` itself for float64)."""
+    dtype = np.dtype(dtype)
+    return np.pi if dtype == np.float64 else np.arccos(np.asarray(-1, dtype=dtype))
+
+
+def cheb_nodes(n, dtype=np.float64):
     """Chebyshev-Gauss-Lobatto nodes on [-1, 1] in ascending order.
 
     Parameters
     ----------
     n : int
         Number of nodes (>= 2).
+    dtype : numpy floating type
+        Precision of the result (``np.longdouble`` for extended precision).
 
     Returns
     -------
@@ -53,14 +61,14 @@ def cheb_nodes(n):
     n = _check_n(n)
     m = n - 1
     j = np.arange(n)
-    return np.sin(np.pi * (2 * j - m) / (2 * m))
+    return np.sin(_pi(dtype) * (2 * j - m) / (2 * m))
 
 
 @functools.lru_cache(maxsize=64)
-def _diff_matrices_cached(n, order):
+def _diff_matrices_cached(n, order, dtype=np.dtype(np.float64)):
     m = n - 1
     k = np.arange(n)
-    th = k * np.pi / m
+    th = k * _pi(dtype) / m
     t = th / 2
     # x_i - x_j by the trigonometric identity, free of cancellation
     dx = 2 * np.sin(t[None, :] + t[:, None]) * np.sin(t[None, :] - t[:, None])
@@ -75,7 +83,7 @@ def _diff_matrices_cached(n, order):
     c[:, -1] /= 2
     z = 1.0 / dx
     z[np.diag_indices(n)] = 0.0
-    d = np.eye(n)
+    d = np.eye(n, dtype=dtype)
     out = []
     for ell in range(1, order + 1):
         d = ell * z * (c * np.diag(d)[:, None] - d)
@@ -87,7 +95,7 @@ def _diff_matrices_cached(n, order):
     return tuple(out)
 
 
-def cheb_diff_matrices(n, order=2):
+def cheb_diff_matrices(n, order=2, dtype=np.float64):
     """Differentiation matrices of orders 1..``order`` at the ascending nodes.
 
     Uses the trigonometric form of the node differences, the flipping trick for
@@ -100,6 +108,9 @@ def cheb_diff_matrices(n, order=2):
         Number of nodes.
     order : int
         Highest derivative order.
+    dtype : numpy floating type
+        Precision (``np.longdouble`` for the extended-precision residuals of
+        :func:`spectral_bulk.newton.polish`).
 
     Returns
     -------
@@ -116,7 +127,7 @@ def cheb_diff_matrices(n, order=2):
     order = int(order)
     if order < 1:
         raise ValueError(f"`order` must be >= 1, got {order}")
-    return _diff_matrices_cached(n, order)
+    return _diff_matrices_cached(n, order, np.dtype(dtype))
 
 
 def values_to_coeffs(values, axis=-1):

@@ -66,28 +66,33 @@ def certificate_failures(bg, obs):
     return bad
 
 
-def taylor_at_boundary(solution, field, order=3, index=0):
+def taylor_at_boundary(solution, field, order=3, index=0, values=None):
     """Taylor coefficients ``[X(0), X'(0), X''(0)/2, ...]`` of a field at a grid end.
 
     The derivatives come from the Chebyshev series chopped where its coefficients
-    reach the rounding plateau (relative ``2e-16``): differentiating the plateau
-    would amplify rounding by ``n**(2k)``, while the chopped terms are below the
-    solution's own accuracy.
+    reach the rounding plateau (relative ``2e-16`` in double, scaled by the machine
+    epsilon for wider types): differentiating the plateau would amplify rounding by
+    ``n**(2k)``, while the chopped terms are below the solution's own accuracy.
+    ``values`` (field -> nodal values, e.g. an extended-precision
+    :class:`~spectral_bulk.newton.Polished` state) replaces ``solution.fields``.
     """
     from numpy.polynomial import chebyshev as npcheb
 
     basis = solution.grid.axes[0]
-    v = np.asarray(solution.fields[field], dtype=float)
+    v = np.asarray((values or solution.fields)[field])
+    if not np.issubdtype(v.dtype, np.floating):
+        v = v.astype(float)
     c = basis.coeffs(v)
     big = np.abs(c).max()
-    keep = np.nonzero(np.abs(c) > 2e-16 * max(big, 1e-300))[0]
+    plateau = 2e-16 * float(np.finfo(v.dtype).eps / np.finfo(np.float64).eps)
+    keep = np.nonzero(np.abs(c) > plateau * max(big, 1e-300))[0]
     m = (keep[-1] + 2) if keep.size else 1
     c = c[: min(m, c.size)]
     a, b = basis.domain
     scale = 2.0 / (b - a)  # affine map: d/dz = (2/(b-a)) d/dxi
     if not basis.map.__class__.__name__ == "AffineMap":
         raise NotImplementedError("boundary Taylor coefficients need an affine radial grid")
-    x = -1.0 if index == 0 else 1.0
+    x = v.dtype.type(-1 if index == 0 else 1)
     out = [float(npcheb.chebval(x, c))]
     fact = 1.0
     d = c
@@ -116,17 +121,20 @@ def _g3(X, G):
     return l3 + 2 * s3 - G1 * (l2 + 2 * s2)
 
 
-def _stress_tensor(bg, sol):
-    """Internal-unit (z_h = 1) boundary data: energy, p_x, p_y, sources, vevs, raw energy."""
+def _stress_tensor(bg, sol, values=None):
+    """Internal-unit (z_h = 1) boundary data: energy, p_x, p_y, sources, vevs, raw energy.
+
+    ``values``: the extended-precision fields of :func:`~spectral_bulk.newton.polish`, if any.
+    """
     d = bg.d
     fblack = np.zeros(4)
     fblack[0] = 1.0
     if d <= 3:
         fblack[d] -= 1.0
-    A = taylor_at_boundary(sol, "A")
-    S = taylor_at_boundary(sol, "S" if bg.gauge == "deturck" else "A")
-    B = taylor_at_boundary(sol, "B")
-    C = taylor_at_boundary(sol, "C")
+    A = taylor_at_boundary(sol, "A", values=values)
+    S = taylor_at_boundary(sol, "S" if bg.gauge == "deturck" else "A", values=values)
+    B = taylor_at_boundary(sol, "B", values=values)
+    C = taylor_at_boundary(sol, "C", values=values)
     F = _mul_series(fblack, A)
     inv_f = np.array([1.0, 0.0, 0.0, 1.0 if d == 3 else 0.0])  # 1/(1 - z^3) to O(z^4)
     G = _mul_series(S, inv_f)
@@ -135,7 +143,7 @@ def _stress_tensor(bg, sol):
     lam_rho2 = 0.0
     srcs, vevs, lams, rho2s = [], [], [], []
     for name in bg.scalar_fields:
-        psi = taylor_at_boundary(sol, name, order=1)
+        psi = taylor_at_boundary(sol, name, order=1, values=values)
         lam, rho2 = psi[0], psi[1] - G[1] * psi[0] / 2
         lams.append(lam)
         rho2s.append(rho2)
@@ -168,7 +176,7 @@ def _stress_tensor(bg, sol):
     energy_raw += shift
     mu = rho_c = 0.0
     if bg.charged:
-        at = taylor_at_boundary(sol, "at", order=1)
+        at = taylor_at_boundary(sol, "at", order=1, values=values)
         mu, rho_c = at[0] / math.sqrt(F0), -at[1] / math.sqrt(F0)
     return dict(energy=energy, p_x=px, p_y=py, energy_raw=energy_raw, sources=srcs, vevs=vevs,
                 lams=lams, rho2s=rho2s, mu=mu, charge=rho_c, G1=G[1], shift=shift)
@@ -404,6 +412,25 @@ def _fractional_vev(bg, sol):
     return float(-psi[0] / bg.T**a)
 
 
+def _polished_values(sol):
+    """Extended-precision fields of a converged solution (None when unavailable or no better).
+
+    The stress tensor sits in third boundary derivatives, where double-precision
+    rounding of the residual (about 1e-14 near the horizon) is amplified to about
+    1e-9 relative; refining in ``np.longdouble`` lowers that floor (module notes of
+    :mod:`spectral_bulk.newton._polish`).
+    """
+    from ..newton import polish
+
+    if not sol.converged:
+        return None
+    try:
+        pol = polish(sol)
+    except NotImplementedError:
+        return None
+    return pol.fields if pol is not None and pol.improved else None
+
+
 def brane_observables(bg, sol):
     """Dimensionless observables (units of T) and certificate of a brane solution.
 
@@ -417,8 +444,9 @@ def brane_observables(bg, sol):
     if not renormalisation_available(bg):
         return _horizon_only(bg, sol)
     T = bg.T
-    st = _stress_tensor(bg, sol)
-    Ah, Sh, Bh, Ch = bg.horizon_metric(sol)
+    values = _polished_values(sol) if getattr(bg, "extended", True) else None
+    st = _stress_tensor(bg, sol, values)
+    Ah, Sh, Bh, Ch = bg.horizon_metric(sol, values)
     s = 4 * math.pi * math.sqrt(Bh * Ch)
     T_sol = T * math.sqrt(Ah / Sh)
     f_thermo = st["energy"] - T * s - st["mu"] * st["charge"]
@@ -428,6 +456,7 @@ def brane_observables(bg, sol):
     obs = {
         "T": 1.0,
         "renormalised": 1,
+        "extended_precision": int(values is not None),
         "s": s / T**2,
         "f": f_thermo / T**3,
         "energy": st["energy"] / T**3,

@@ -6,10 +6,12 @@
 ``NewtonOptions`` tolerances and algorithm constants
 ``MESSAGES``      status code -> message template
 ``check_jacobian`` compare the exact linearisation with finite differences
+``polish``        refine a converged 1-D solution with residuals in extended precision
 """
 
 from ._linalg import DenseSolver, KrylovSolver, assemble_dense, jacobian_action, make_solver
 from ._newton import MESSAGES, NewtonOptions, check_jacobian, initial_state, residual_norm, scaled_norm, solve
+from ._polish import Polished, extended_precision_available, polish
 from ._problem import Namespace, Problem
 from ._result import SolveResult
 
@@ -21,6 +23,9 @@ __all__ = [
     "NewtonOptions",
     "MESSAGES",
     "check_jacobian",
+    "polish",
+    "Polished",
+    "extended_precision_available",
     "initial_state",
     "scaled_norm",
     "residual_norm",

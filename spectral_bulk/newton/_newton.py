@@ -270,9 +270,12 @@ def _newton(problem, u, params, opts, first_is_input=False):
         rcond = solver.rcond if solver is not None else np.nan
         fmt.update(residual=r, tail=float(max(tails)), rcond=rcond,
                    update=info["update_norms"][-1] if info["update_norms"] else np.nan)
-        return SolveResult(problem, state, params, status=status, message=MESSAGES[status].format(**fmt),
-                           iterations=info["njev"], residual=r, update=fmt["update"], tail=tail,
-                           condition=rcond, linear_solver=getattr(solver, "kind", None), **info)
+        res = SolveResult(problem, state, params, status=status, message=MESSAGES[status].format(**fmt),
+                          iterations=info["njev"], residual=r, update=fmt["update"], tail=tail,
+                          condition=rcond, linear_solver=getattr(solver, "kind", None), **info)
+        # the last factorisation, for refinement (polish) at the returned state
+        res._jacobian_solver = solver if status == 0 else None
+        return res
 
     lam = opts.lambda_init
     prev = None  # (norm dx, dxbar, lam) of the previous iteration

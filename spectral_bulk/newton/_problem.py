@@ -311,23 +311,30 @@ class Problem:
             res.append(r)
         return res
 
-    def _evaluate(self, dvals, params, complex_step=None):
+    def _evaluate(self, dvals, params, complex_step=None, coords=None, dtype=float):
         """Residual rows (boundary rows replaced); shape ``(nfields, [batch,] size)``.
 
-        ``dvals`` has shape ``(nfields, nalpha, [batch,] size)``.
+        ``dvals`` has shape ``(nfields, nalpha, [batch,] size)``; ``coords`` (default the
+        grid's) is a dict name -> coordinate array and ``dtype`` the real type of the rows.
         """
         npts = self.grid.size
         plan = self._plan()
         p = Namespace(params, "parameter")
-        eq = self._call(self.equations, plan["coords"], dvals, p, f"equations {self.name!r}", npts)
+        if coords is None:
+            coords, face_coords = plan["coords"], plan["face_coords"]
+        else:  # a dict name -> coordinate array
+            face_coords = [Namespace({n: c[idx] for n, c in coords.items()}, "coordinate")
+                           for _, _, idx in plan["faces"]]
+            coords = Namespace(coords, "coordinate")
+        eq = self._call(self.equations, coords, dvals, p, f"equations {self.name!r}", npts)
         for i, e in enumerate(eq):
             if e is None:
                 raise ProblemDefinitionError(
                     f"equations returned None for field {self.fields[i]!r}; "
                     "None is only meaningful in boundary conditions"
                 )
-        rows = np.array(eq, dtype=complex if complex_step else float)
-        for (key, fun, idx), cb in zip(plan["faces"], plan["face_coords"]):
+        rows = np.array(eq, dtype=complex if complex_step else dtype)
+        for (key, fun, idx), cb in zip(plan["faces"], face_coords):
             bc = self._call(fun, cb, dvals[..., idx], p, f"boundary condition {key!r}", len(idx))
             for i, b in enumerate(bc):
                 if b is not None:
@@ -340,6 +347,41 @@ class Problem:
         dv = self.derivatives(state)
         with np.errstate(all="ignore"):
             return self._evaluate(dv, params).ravel()
+
+    def residual_extended(self, state, params=None, dtype=np.longdouble):
+        """The residual in a floating type wider than double (1-D affine Chebyshev grids).
+
+        Coordinates, differentiation matrices, state and the callbacks' arithmetic are
+        all in ``dtype``; callbacks written with numpy operations carry it through.
+
+        Parameters
+        ----------
+        state : array_like
+            Flat state, converted to ``dtype``.
+        params : dict, optional
+        dtype : numpy floating type
+
+        Returns
+        -------
+        ndarray, shape (size,), of ``dtype``
+
+        Raises
+        ------
+        NotImplementedError
+            On a multi-dimensional grid or a non-affine map.
+        """
+        grid = self.grid
+        if grid.ndim != 1 or not hasattr(grid.axes[0], "extended"):
+            raise NotImplementedError("extended-precision residuals need a 1-D Chebyshev grid")
+        params = self.merged_params(params)
+        points, mats = grid.axes[0].extended(self.max_order, dtype)
+        u = np.asarray(state, dtype=dtype).reshape(self.nfields, grid.size)
+        dv = np.empty((self.nfields, len(self.alphas), grid.size), dtype=dtype)
+        for k, (order,) in enumerate(self.alphas):
+            dv[:, k] = u if order == 0 else u @ mats[order - 1].T
+        coords = {grid.names[0]: points}
+        with np.errstate(all="ignore"):
+            return self._evaluate(dv, params, coords=coords, dtype=dtype).ravel()
 
     def linearize(self, state, params=None):
         """Residual and pointwise linearisation coefficients.
