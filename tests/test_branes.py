@@ -132,6 +132,21 @@ def test_qlattice_brane_against_shooting_in_the_test():
     assert_certified(obs)
 
 
+@pytest.mark.parametrize("lam, k", [(1.0, 1.0), (2.5, 0.4)])
+def test_stress_tensor_from_identities_matches_holographic_renormalisation(mass2, lam, k):
+    # second route (used for rational falloffs): T s, the trace Ward identity and the radial
+    # anisotropy integral for p_x - p_y (docs section j) against the counterterm stress tensor
+    from spectral_bulk.holography._branes import anisotropy_integral, stress_from_identities
+
+    bg = QLatticeBrane(mass2, n=24)
+    sol = bg.solve(lam=lam, k=k)
+    obs = sol.observables
+    w = obs["source"] * obs["vev"]  # (d - Delta) lambda <O> with d - Delta = 1
+    routes = stress_from_identities(obs["s"], w, anisotropy_integral(bg, sol) / bg.T**3)
+    for key, value in zip(("energy", "p_x", "p_y"), routes):
+        assert_close(value, obs[key], rtol=1e-10)
+
+
 @pytest.mark.parametrize("k", [0.5, 1.0, 2.0])
 def test_entropy_at_second_order_in_the_source(mass2, k):
     # s/s0 = 1 + c(k/T) (lambda/T)^2 + O(lambda^4); c from the independent linear-response

@@ -20,14 +20,20 @@ solution.  ``T`` and ``s`` come from the horizon; the free energy is computed tw
 ``energy - T s - mu rho`` and from the renormalised Euclidean action (bulk integral in the
 areal coordinate plus boundary terms), and their difference is part of the certificate.
 
+The third Taylor coefficients are read from the solution refined with residuals in extended
+precision (:func:`spectral_bulk.newton.polish`): in double precision alone the rounding of the
+residual, amplified by about ``n^6/15``, limits them to about 1e-9 relative.
+
 Rational falloffs (one scalar, ``3/4 < Delta_- = a < 3/2``, even potential, solved in
 ``u = z^{1/p}``): counterterm ``(a/2) phi^2``; ``psi = lambda + beta u^n + ...`` with
 ``n = (3 - 2a) p`` gives ``<O> = (3 - 2a) beta`` (standard) or ``J = (3 - 2a) beta``,
-``<O> = -lambda`` (alternative), reported with ``s`` and ``T``.  The stress tensor needs the
-``u^{3p}`` Taylor coefficient of the metric, which the Chebyshev series does not resolve
-(measured ~1e-5 for p = 2), so it is NaN, ``renormalised = 0`` and the certificate fails
-with that reason (:func:`renormalisation_obstruction`); the formulas it would use are
-derived in ``docs/physics/black_branes.md`` section i.
+``<O> = -lambda`` (alternative), reported with ``s`` and ``T``.  The stress tensor would need
+the ``u^{3p}`` Taylor coefficient of the metric, which the Chebyshev series does not resolve
+(~1e-5 for p = 2); it is computed instead from ``energy + p_y = T s``, the trace Ward identity
+and the radial anisotropy integral for ``p_x - p_y`` (:func:`stress_from_identities`,
+:func:`anisotropy_integral`; ``stress_from_identities = 1``), which on integer falloffs agrees
+with the counterterm route to ~1e-12.  The identities used are then no certificate (NaN); the
+first law along families and ``p_x = -f + k df/dk`` check the result (tests).
 """
 
 import math
@@ -38,16 +44,20 @@ from ..gravity import Series, coordinate_series
 
 __all__ = ["brane_observables", "taylor_at_boundary", "CERTIFICATE_KEYS", "BRANE_CERTIFICATE",
            "certificate_failures", "renormalisation_available", "renormalisation_obstruction",
-           "RENORMALISATION_WINDOW"]
+           "RENORMALISATION_WINDOW", "anisotropy_integral", "stress_from_identities"]
 
 #: Keys of the certificate part of the observables.
 CERTIFICATE_KEYS = ("residual", "tail", "ward_trace", "thermo", "py_f", "action", "deturck",
                     "constraint", "temperature")
 
 #: Certificate thresholds (relative residuals) of brane observables; the stress tensor needs
-#: third boundary Taylor coefficients, accurate to ~1e-9 relative.
+#: third boundary Taylor coefficients, accurate to ~1e-9 relative in double precision.
 BRANE_CERTIFICATE = {"ward_trace": 1e-8, "thermo": 1e-8, "py_f": 1e-8, "action": 1e-8,
                      "temperature": 1e-10, "deturck": 1e-10, "constraint": 1e-8}
+
+#: Stress-tensor identities whose thresholds are ten times smaller when the boundary data come
+#: from the extended-precision refinement (``extended_precision = 1``; measured ~1e-12).
+EXTENDED_KEYS = ("ward_trace", "thermo", "py_f", "action")
 
 
 def certificate_failures(bg, obs):
@@ -59,7 +69,10 @@ def certificate_failures(bg, obs):
     if not obs.get("renormalised", 1):
         why = renormalisation_obstruction(bg) if hasattr(bg, "horizon_metric") else None
         bad.append("renormalisation not implemented for this model" + (f" ({why})" if why else ""))
+    extended = obs.get("extended_precision", 0) == 1
     for key, lim in limits.items():
+        if extended and key in EXTENDED_KEYS:
+            lim = lim / 10
         v = obs.get(key, np.nan)
         if isinstance(v, (float, int, np.floating)) and np.isfinite(v) and v > lim:
             bad.append(f"{key}={v:.1e}>{lim:.0e}")
@@ -324,7 +337,7 @@ def renormalisation_obstruction(bg):
 
     Covered: d = 3 with scalars of m^2 = -2 in ``z`` (Delta = 2 or 1), and one scalar with a
     rational ``3/4 < Delta_- < 3/2`` solved in ``u = z^{1/p}`` whose potential (and phase
-    metric) is even to the orders that matter.
+    metric) is even to the orders that matter (stress tensor from the identities there).
     """
 
     if bg.d != 3:
@@ -337,13 +350,8 @@ def renormalisation_obstruction(bg):
         return (f"scalar {sc.name!r}: m^2 = {sc.m2:.6g} (Delta_- = {sc.delta_minus:.6g}); integer "
                 "falloffs are renormalised for m^2 = -2 only, rational ones need "
                 f"{RENORMALISATION_WINDOW[0]:g} < Delta_- < {RENORMALISATION_WINDOW[1]:g}")
-    why = _fractional_vev_obstruction(bg)
-    if why:
-        return why
-    # the vev is available; the stress tensor is not (docs/physics/black_branes.md section i)
-    return (f"the stress tensor of the rational falloff Delta_- = {bg.alpha:.6g} sits at the "
-            f"u^{3 * bg.power} boundary Taylor coefficient of the metric (z = u^{bg.power}), which "
-            "the Chebyshev series resolves only to ~1e-5; s, T, the source and <O> are reported")
+    # the vev is available; the stress tensor then follows from the identities (module notes)
+    return _fractional_vev_obstruction(bg)
 
 
 def _fractional_vev_obstruction(bg):
@@ -371,10 +379,51 @@ def renormalisation_available(bg):
     """True where the renormalised stress tensor and vevs are implemented.
 
     d = 3 with m^2 = -2 scalars (integer falloffs), or one scalar with rational
-    ``3/4 < Delta_- < 3/2`` and an even potential (solved in ``u = z^{1/p}``); see
+    ``3/4 < Delta_- < 3/2`` and an even potential (solved in ``u = z^{1/p}``, stress tensor
+    from :func:`stress_from_identities`); see
     :func:`renormalisation_obstruction` for the reason in the other cases.
     """
     return renormalisation_obstruction(bg) is None
+
+
+def anisotropy_integral(bg, sol, m=64):
+    """``<T_xx> - <T_yy>`` (internal units) of a Q-lattice brane as a radial integral.
+
+    ``R^x_x - R^y_y = Phi(rho) k^2 g^xx / 2`` and ``sqrt(-g) (R^x_x - R^y_y)`` is
+    ``-(1/2) d/dz [sqrt(-g) g^zz (log B/C)']``; the bracket vanishes at the horizon and equals
+    ``3 (l3^B - l3^C) = p_x - p_y`` at the boundary, so (docs/physics/black_branes.md
+    section j)::
+
+        p_x - p_y = k^2 int_0^1 z^-2 A sqrt(C/B) Phi(phi) dz
+
+    evaluated by Gauss-Legendre on the Chebyshev interpolant (in ``u``, ``dz = p u^{p-1} du``).
+    Zero for branes without a lattice.
+    """
+    if not getattr(bg, "lattice", False):
+        return 0.0
+    basis = sol.grid.axes[0]
+    xq, wq = _gauss_points(max(m, 2 * basis.n))
+    P = basis.interp_matrix(xq)
+    A, B, C, psi = (P @ sol.fields[name] for name in ("A", "B", "C", bg.scalar_fields[0]))
+    p = getattr(bg, "power", 1)
+    if p == 1:
+        z, dz, phi = xq, np.ones_like(xq), xq ** bg._dims()[0][0] * psi
+    else:
+        z, dz, phi = xq**p, p * xq ** (p - 1), xq**bg.rho_power * psi
+    kk = sol.params["k"] * bg.T
+    integrand = dz * A * np.sqrt(C / B) * np.real(bg.model.Phi(phi)) / z**2
+    return float(kk**2 * np.sum(wq * integrand))
+
+
+def stress_from_identities(Ts, ward_rhs, anisotropy):
+    """``(energy, p_x, p_y)`` of a homogeneous brane from ``T s``, the Ward trace and ``p_x - p_y``.
+
+    Solves ``energy + p_y = T s`` (radially conserved charge; ``mu = 0``),
+    ``-energy + p_x + p_y = sum_I (d - Delta_I) J_I <O_I>`` (trace Ward identity, d = 3) and
+    ``p_x - p_y = anisotropy``: ``p_y = (T s + w - J)/3``, ``p_x = p_y + J``, ``energy = T s - p_y``.
+    """
+    py = (Ts + ward_rhs - anisotropy) / 3
+    return Ts - py, py + anisotropy, py
 
 
 def _horizon_only(bg, sol):
@@ -412,6 +461,27 @@ def _fractional_vev(bg, sol):
     return float(-psi[0] / bg.T**a)
 
 
+def _rational_observables(bg, sol):
+    """Observables of a rational falloff (one neutral scalar, solved in ``u = z^{1/p}``).
+
+    ``s``, ``T``, the source and ``<O>`` come from the horizon and the ``u^n`` coefficient of
+    ``psi``; the stress tensor from :func:`stress_from_identities` with the anisotropy
+    integral (its ``u^{3p}`` Taylor coefficient is out of reach of the Chebyshev series).
+    The two identities used are then not certificates (``ward_trace``, ``thermo``, ``py_f``
+    are NaN); the first law along a family (``cert_first_law``: ``<O> = -d f/d source``) and
+    ``p_x = -f + k df/dk`` check the result.
+    """
+    obs = _horizon_only(bg, sol)
+    T = bg.T
+    (_, src_dim), = bg._dims()
+    w = src_dim * obs["source"] * obs["vev"]  # (d - Delta) J <O> in units of T^3
+    J = anisotropy_integral(bg, sol) / T**3
+    energy, px, py = stress_from_identities(obs["s"], w, J)
+    obs.update({"energy": energy, "p_x": px, "p_y": py, "f": energy - obs["s"], "renormalised": 1,
+                "stress_from_identities": 1})
+    return obs
+
+
 def _polished_values(sol):
     """Extended-precision fields of a converged solution (None when unavailable or no better).
 
@@ -439,10 +509,13 @@ def brane_observables(bg, sol):
     (``s``, ``rho_h``) and the gauge certificate are returned, the rest is NaN and
     ``renormalised = 0`` (which fails the certificate instead of reporting wrong numbers;
     :func:`renormalisation_obstruction` gives the reason).  Rational falloffs with
-    ``3/4 < Delta_- < 3/2`` (solved in ``u = z^{1/p}``) also report the source and ``<O>``.
+    ``3/4 < Delta_- < 3/2`` (solved in ``u = z^{1/p}``) report the source, ``<O>`` and the
+    stress tensor from the identities (module notes).
     """
     if not renormalisation_available(bg):
         return _horizon_only(bg, sol)
+    if getattr(bg, "power", 1) != 1:
+        return _rational_observables(bg, sol)
     T = bg.T
     values = _polished_values(sol) if getattr(bg, "extended", True) else None
     st = _stress_tensor(bg, sol, values)
@@ -456,6 +529,7 @@ def brane_observables(bg, sol):
     obs = {
         "T": 1.0,
         "renormalised": 1,
+        "stress_from_identities": 0,
         "extended_precision": int(values is not None),
         "s": s / T**2,
         "f": f_thermo / T**3,
