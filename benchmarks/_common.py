@@ -48,7 +48,7 @@ except ImportError:  # pragma: no cover - depends on the environment
 
 import spectral_bulk  # noqa: E402
 from spectral_bulk.newton import Problem  # noqa: E402
-from spectral_bulk.newton import _linalg, _newton  # noqa: E402
+from spectral_bulk.newton import _linalg, _newton, _workspace  # noqa: E402
 
 BENCH_DIR = os.path.dirname(os.path.abspath(__file__))
 REPO_ROOT = os.path.dirname(BENCH_DIR)
@@ -342,11 +342,15 @@ class Clock:
     def time_newton_core(self, pointwise="pointwise", factorisation="linear_algebra",
                          assembly="linear_algebra"):
         """Time the Newton engine's pieces: ``Problem.linearize / param_derivative / residual``
-        in ``pointwise``, ``DenseSolver`` (construction = LU, ``solve``, ``slogdet``) in
-        ``factorisation``, and the dense assembly (``assemble_dense`` wherever it is looked up,
-        ``_bordered_dense``) in ``assembly``."""
+        and the 1-D workspace's ``linearize`` in ``pointwise``, ``DenseSolver`` (construction =
+        LU, ``solve``, ``slogdet``) and the workspace's ``factor`` in ``factorisation``, and the
+        dense assembly (``assemble_dense`` wherever it is looked up, ``_bordered_dense``, the
+        workspace's ``prepare``) in ``assembly``."""
         for attr in ("linearize", "param_derivative", "residual"):
             self.patch(Problem, attr, self.timer(pointwise))
+        self.patch(_workspace.DenseWorkspace, "linearize", self.timer(pointwise))
+        self.patch(_workspace.DenseWorkspace, "factor", self.timer(factorisation))
+        self.patch(_workspace.DenseWorkspace, "prepare", self.timer(assembly))
         for attr in ("__init__", "solve", "slogdet"):
             self.patch(_linalg.DenseSolver, attr, self.timer(factorisation))
         for mod in (_linalg, _newton):

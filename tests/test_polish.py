@@ -114,6 +114,15 @@ def test_polish_bratu_against_its_closed_form():
     assert err_ext < 1e-17 and err_ext < err_double / 100, (err_ext, err_double)
 
 
+def test_polish_factorises_anew_when_the_result_kept_no_factorisation():
+    res = solve(_linear_problem(40), 0.0, tol=1e-13)
+    kept = polish(res)
+    res._jacobian_solver = None  # as for large problems and results made elsewhere
+    fresh = polish(res)
+    assert fresh.improved
+    assert np.abs(fresh.state - kept.state).max() < 1e-17
+
+
 def test_polish_needs_a_wider_type():
     res = solve(_linear_problem(16), 0.0)
     assert polish(res, dtype=np.float64) is None

@@ -97,6 +97,8 @@ class BackgroundSolution(SolveResult):
         out.__dict__.update(res.__dict__)
         out.background = background
         out.observables = background.observables(res)
+        # the factorisation kept for the refinement of the observables is not needed any more
+        res._jacobian_solver = out._jacobian_solver = None
         out.certificate_failures = certificate_failures(background, out.observables)
         out.certified = bool(res.converged and not out.certificate_failures)
         return out

@@ -433,7 +433,8 @@ def _horizon_only(bg, sol):
     deturck, constraint = _gauge_checks(bg, sol)
     nan = float("nan")
     obs = {"T": 1.0, "s": 4 * math.pi * math.sqrt(Bh * Ch) / T**2, "f": nan, "energy": nan,
-           "p_x": nan, "p_y": nan, "f_action": nan, "renormalised": 0}
+           "p_x": nan, "p_y": nan, "f_action": nan, "renormalised": 0, "stress_from_identities": 0,
+           "extended_precision": 0}
     for name in bg.source_names():
         obs["source" + ("" if name == "lam" else name[3:])] = float(sol.params[name])
         obs["vev" + ("" if name == "lam" else name[3:])] = nan

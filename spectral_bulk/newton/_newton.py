@@ -107,6 +107,10 @@ class NewtonOptions:
         return out
 
 
+#: results of problems up to this many unknowns keep their last dense factorisation
+KEEP_FACTOR_SIZE = 600
+
+
 def _status_docs():
     lines = ["Status codes", "------------"]
     for k, v in MESSAGES.items():
@@ -273,8 +277,10 @@ def _newton(problem, u, params, opts, first_is_input=False):
         res = SolveResult(problem, state, params, status=status, message=MESSAGES[status].format(**fmt),
                           iterations=info["njev"], residual=r, update=fmt["update"], tail=tail,
                           condition=rcond, linear_solver=getattr(solver, "kind", None), **info)
-        # the last factorisation, for refinement (polish) at the returned state
-        res._jacobian_solver = solver if status == 0 else None
+        # the last dense factorisation of a small problem, for refinement (polish) at the
+        # returned state; larger ones are not kept alive (polish factorises anew)
+        keep = status == 0 and getattr(solver, "kind", None) == "dense" and problem.size <= KEEP_FACTOR_SIZE
+        res._jacobian_solver = solver if keep else None
         return res
 
     lam = opts.lambda_init
