@@ -111,6 +111,27 @@ class NewtonOptions:
 KEEP_FACTOR_SIZE = 600
 
 
+_DEFAULT_OPTIONS = {}  # validated defaults by shortcut values (solve is called in tight loops)
+
+
+def _options(options, shortcuts):
+    """Validated options: ``options`` (or the defaults) with the ``solve`` shortcuts applied."""
+    if options is not None:
+        return dataclasses.replace(options, **shortcuts).validated()
+    try:
+        key = tuple(sorted(shortcuts.items()))
+        cached = _DEFAULT_OPTIONS.get(key)
+    except TypeError:  # an unhashable shortcut value: no caching
+        key = cached = None
+    if cached is None:
+        cached = dataclasses.replace(NewtonOptions(), **shortcuts).validated()
+        raised = any(k in shortcuts and cached.__dict__[k] != shortcuts[k] for k in ("tol", "tail_tol"))
+        if key is not None and not raised and len(_DEFAULT_OPTIONS) < 256:
+            _DEFAULT_OPTIONS[key] = cached  # (a raised tolerance warns on every call)
+    # shared, read-only: nothing in the engine assigns to options
+    return cached
+
+
 def _status_docs():
     lines = ["Status codes", "------------"]
     for k, v in MESSAGES.items():
@@ -229,7 +250,7 @@ def solve(problem, guess, *, params=None, tol=None, max_iter=None, damping=None,
     shortcuts = dict(tol=tol, max_iter=max_iter, damping=damping, tail_tol=tail_tol,
                      linear_solver=linear_solver)
     shortcuts = {k: v for k, v in shortcuts.items() if v is not None}
-    opts = dataclasses.replace(options or NewtonOptions(), **shortcuts).validated()
+    opts = _options(options, shortcuts)
     t0 = time.perf_counter()
     params = problem.merged_params(params)
     u = initial_state(problem, guess)
