@@ -167,6 +167,8 @@ def test_stress_tensor_from_the_identities_obeys_the_first_law(model, quantizati
     obs = sol.observables
     assert sol.certified and obs["renormalised"] == 1 and obs["stress_from_identities"] == 1
     assert np.isnan(obs["ward_trace"]) and np.isnan(obs["thermo"])  # used, so not certificates
+    # the renormalised Euclidean action (docs section i.4) sees the energy only through f_3
+    assert obs["action"] < 1e-9 and abs(obs["f_action"] / obs["f"] - 1) < 1e-9
     assert abs(obs["f"] + obs["p_y"]) < 1e-12 * abs(obs["f"])
     dfdj = _five_point(lambda x: bg.solve(lam=x, k=k0).observables["f"], lam0, h)
     assert abs(dfdj + obs["vev"]) < 1e-8 * abs(obs["vev"]), (dfdj, obs["vev"])
