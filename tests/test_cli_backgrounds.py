@@ -38,6 +38,27 @@ def test_brane_config_can_skip_the_extended_precision_refinement(tmp_path, capsy
         assert ds.attrs["obs_extended_precision"] == 0
 
 
+def test_show_applies_the_tighter_limits_where_boundary_data_are_extended(tmp_path, capsys):
+    cfg = tmp_path / "fam.toml"
+    cfg.write_text('[background]\nkind = "qlattice_brane"\n[model]\nbuiltin = "mass2"\n'
+                   '[params]\nlam = 0.1\nk = 1.0\n[follow]\nparam = "lam"\nstop = 0.4\nstep = 0.1\n')
+    out = tmp_path / "fam.nc"
+    code, _, stderr = run(["follow", str(cfg), "-o", str(out)], capsys)
+    assert code == 0, stderr
+    with xr.open_dataset(out) as ds:
+        ds = ds.load()
+    assert int(ds.extended_precision.min()) == 1
+    # 5e-9 passes the double-precision limit (1e-8) but not the extended one (1e-9)
+    ds["cert_ward_trace"][1] = 5e-9
+    for flag, expected in ((1, 1), (0, 0)):
+        ds["extended_precision"][1] = flag
+        path = tmp_path / f"edited{flag}.nc"
+        ds.to_netcdf(path)
+        code, stdout, _ = run(["show", str(path)], capsys)
+        assert code == expected, stdout
+        assert ("FAILED" in stdout) == bool(expected)
+
+
 def test_follow_wall_config_and_show(tmp_path, capsys):
     cfg = tmp_path / "wall.toml"
     cfg.write_text(textwrap.dedent("""
