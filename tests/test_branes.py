@@ -22,6 +22,7 @@ import pytest
 from spectral_bulk.backgrounds import AxionBrane, BlackBrane, QLatticeBrane
 from spectral_bulk.exceptions import ConvergenceWarning, ProblemDefinitionError, ResolutionWarning
 from spectral_bulk.models import BulkModel, QLatticeModel, builtin
+from spectral_bulk.newton import extended_precision_available
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 
@@ -41,8 +42,11 @@ with open(os.path.join(HERE, "reference", "brane_values.json")) as fh:
 KEYS = ("s", "energy", "f", "p_x", "p_y", "vev", "rho_h")
 # relative agreement demanded against the references; the stress tensor needs third
 # Taylor coefficients at the boundary, read from the extended-precision refinement of the
-# solution (in double their rounding error alone is ~1e-9 relative)
-RTOL = 1e-11
+# solution (in double their rounding error alone is ~1e-9 relative: platforms whose long
+# double is no wider than double get the double-precision floor)
+EXTENDED = extended_precision_available()
+RTOL = 1e-11 if EXTENDED else 5e-9
+IDENTITY_TOL = 1e-10 if EXTENDED else 2e-9
 
 
 def assert_close(actual, expected, rtol=RTOL, scale=None):
@@ -50,10 +54,10 @@ def assert_close(actual, expected, rtol=RTOL, scale=None):
     assert abs(actual - expected) <= rtol * scale, (actual, expected)
 
 
-def assert_certified(obs, tol=1e-10):
+def assert_certified(obs, tol=IDENTITY_TOL):
     # identities among stress-tensor components: the boundary data are read from the
     # extended-precision refinement of the solution (about 1e-12 relative is measured)
-    assert obs["extended_precision"] == 1
+    assert obs["extended_precision"] == int(EXTENDED)
     for key in ("ward_trace", "thermo", "py_f", "action"):
         if not np.isnan(obs[key]):
             assert obs[key] < tol, (key, obs[key])
@@ -100,10 +104,11 @@ def test_linear_axion_brane_exact(alpha):
     # read from the extended-precision refinement it is free of the double rounding floor
     # (about 1e-9 relative, amplified by ~k^6/15 for the k-th coefficient)
     for key in ("energy", "f", "p_x", "p_y"):
-        assert_close(obs[key], ref[key], rtol=1e-11)
+        assert_close(obs[key], ref[key], rtol=RTOL if EXTENDED else 2e-8)
     # axion sources are exactly marginal: the trace vanishes (same reference)
-    assert abs(-obs["energy"] + obs["p_x"] + obs["p_y"]) < 1e-11 * obs["energy"]
-    assert obs["action"] < 1e-11 and obs["ward_trace"] < 1e-11
+    floor = 1e-11 if EXTENDED else 2e-8
+    assert abs(-obs["energy"] + obs["p_x"] + obs["p_y"]) < floor * obs["energy"]
+    assert obs["action"] < floor and obs["ward_trace"] < floor
 
 
 @pytest.mark.parametrize("index", range(len(VALUES["points"])))
@@ -144,7 +149,7 @@ def test_stress_tensor_from_identities_matches_holographic_renormalisation(mass2
     w = obs["source"] * obs["vev"]  # (d - Delta) lambda <O> with d - Delta = 1
     routes = stress_from_identities(obs["s"], w, anisotropy_integral(bg, sol) / bg.T**3)
     for key, value in zip(("energy", "p_x", "p_y"), routes):
-        assert_close(value, obs[key], rtol=1e-10)
+        assert_close(value, obs[key], rtol=1e-10 if EXTENDED else 5e-9)
 
 
 @pytest.mark.parametrize("k", [0.5, 1.0, 2.0])
@@ -204,7 +209,7 @@ def test_family_in_lambda_carries_observables_and_first_law(mass2, roundtrip):
     ds = br.to_dataset()
     for key in ("s", "f", "energy", "vev", "cert_ward_trace", "cert_first_law"):
         assert key in ds
-    assert float(ds.cert_ward_trace.max()) < 1e-10
+    assert float(ds.cert_ward_trace.max()) < IDENTITY_TOL
     # vev = -d(f/T^3)/d(lambda/T) along the family (5-point derivative, spacing <= 0.1)
     assert float(ds.cert_first_law.max()) < 1e-6
     back = roundtrip(ds)
