@@ -413,38 +413,30 @@ def part_a(quick, rounds):
     # ---- interleaved timing
     funcs = {}
     objs = {}
-    if n_cert:
-        objs["spec_cert"] = QLatticeBrane(model, n=n_cert, n_max=n_cert)
-        quiet(objs["spec_cert"].solve, lam=LAM_T, k=K_T)  # builds and caches the Problem
 
-        def spec_cert():
-            bg = objs["spec_cert"]
+    def cold_solve(key, **kwargs):
+        """``bg.solve`` from the trivial background on a cached object (its Problem built once)."""
+        objs[key] = QLatticeBrane(model, **kwargs)
+        quiet(objs[key].solve, lam=LAM_T, k=K_T)  # builds and caches the Problem
+
+        def run():
+            bg = objs[key]
             bg._last = None
             return quiet(bg.solve, lam=LAM_T, k=K_T)
-        funcs["spectral (certified n)"] = spec_cert
+        return run
+
+    if n_cert:
+        funcs["spectral (certified n)"] = cold_solve("spec_cert", n=n_cert, n_max=n_cert)
         # the same without the extended-precision refinement of the boundary data (same s;
         # stress-tensor identities ~1e-9 instead of ~1e-12)
-        objs["spec_double"] = QLatticeBrane(model, n=n_cert, n_max=n_cert, extended=False)
-        quiet(objs["spec_double"].solve, lam=LAM_T, k=K_T)
-
-        def spec_double():
-            bg = objs["spec_double"]
-            bg._last = None
-            return quiet(bg.solve, lam=LAM_T, k=K_T)
-        funcs["spectral, double-precision observables"] = spec_double
+        funcs["spectral, double-precision observables"] = cold_solve(
+            "spec_double", n=n_cert, n_max=n_cert, extended=False)
 
         def spec_fresh():
             return quiet(QLatticeBrane(model, n=n_cert, n_max=n_cert).solve, lam=LAM_T, k=K_T)
         funcs["spectral, new object per call"] = spec_fresh
     if n_any and n_any != n_cert:
-        objs["spec_any"] = QLatticeBrane(model, n=n_any, n_max=n_any)
-        quiet(objs["spec_any"].solve, lam=LAM_T, k=K_T)
-
-        def spec_any():
-            bg = objs["spec_any"]
-            bg._last = None
-            return quiet(bg.solve, lam=LAM_T, k=K_T)
-        funcs["spectral (smallest n, uncertified)"] = spec_any
+        funcs["spectral (smallest n, uncertified)"] = cold_solve("spec_any", n=n_any, n_max=n_any)
     if tuned:
         pt = ArealBVP(lam_b, kb, tuned["delta"])
         funcs["solve_bvp tuned"] = lambda: quiet(pt.solve, tuned["tol"], tuned["m0"], tuned["mesh"], tuned["jac"])

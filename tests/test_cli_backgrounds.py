@@ -28,12 +28,17 @@ def test_solve_qlattice_brane_config(tmp_path, capsys):
         assert ds.attrs["converged"] == 1 and "obs_s" in ds.attrs and "[background]" in ds.attrs["config"]
 
 
+def run_config(tmp_path, capsys, command, text):
+    """Write ``text`` as a config and run ``command`` on it; returns (code, stdout, stderr, out)."""
+    cfg, out = tmp_path / f"{command}.toml", tmp_path / f"{command}.nc"
+    cfg.write_text(text)
+    return (*run([command, str(cfg), "-o", str(out)], capsys), out)
+
+
 def test_brane_config_can_skip_the_extended_precision_refinement(tmp_path, capsys):
-    cfg = tmp_path / "double.toml"
-    cfg.write_text('[background]\nkind = "qlattice_brane"\nextended_precision = false\n'
-                   '[model]\nbuiltin = "mass2"\n[params]\nlam = 0.5\nk = 1.0\n')
-    out = tmp_path / "double.nc"
-    code, stdout, _ = run(["solve", str(cfg), "-o", str(out)], capsys)
+    code, _, _, out = run_config(tmp_path, capsys, "solve",
+                                 '[background]\nkind = "qlattice_brane"\nextended_precision = false\n'
+                                 '[model]\nbuiltin = "mass2"\n[params]\nlam = 0.5\nk = 1.0\n')
     assert code == 0
     with xr.open_dataset(out) as ds:
         assert ds.attrs["obs_extended_precision"] == 0
@@ -41,11 +46,9 @@ def test_brane_config_can_skip_the_extended_precision_refinement(tmp_path, capsy
 
 @pytest.mark.skipif(not extended_precision_available(), reason="no long double wider than double here")
 def test_show_applies_the_tighter_limits_where_boundary_data_are_extended(tmp_path, capsys):
-    cfg = tmp_path / "fam.toml"
-    cfg.write_text('[background]\nkind = "qlattice_brane"\n[model]\nbuiltin = "mass2"\n'
-                   '[params]\nlam = 0.1\nk = 1.0\n[follow]\nparam = "lam"\nstop = 0.4\nstep = 0.1\n')
-    out = tmp_path / "fam.nc"
-    code, _, stderr = run(["follow", str(cfg), "-o", str(out)], capsys)
+    code, _, stderr, out = run_config(
+        tmp_path, capsys, "follow", '[background]\nkind = "qlattice_brane"\n[model]\nbuiltin = "mass2"\n'
+        '[params]\nlam = 0.1\nk = 1.0\n[follow]\nparam = "lam"\nstop = 0.4\nstep = 0.1\n')
     assert code == 0, stderr
     with xr.open_dataset(out) as ds:
         ds = ds.load()
