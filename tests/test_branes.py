@@ -137,6 +137,20 @@ def test_qlattice_brane_against_shooting_in_the_test():
     assert_certified(obs)
 
 
+def test_a_model_without_long_double_support_falls_back_to_double(mass2, monkeypatch):
+    # a model function with no long-double loop (as some scipy.special ufuncs) must not break
+    # the observables: they are read in double precision and the flag says so
+    from spectral_bulk.newton import Problem
+
+    def refuse(self, *args, **kwargs):
+        raise TypeError("ufunc 'erf' not supported for the input types")
+
+    monkeypatch.setattr(Problem, "residual_extended", refuse)
+    obs = QLatticeBrane(mass2, n=24).solve(lam=1.0, k=1.0).observables
+    assert obs["extended_precision"] == 0
+    assert obs["ward_trace"] < 2e-9 and obs["thermo"] < 2e-9  # the double-precision floor
+
+
 @pytest.mark.parametrize("lam, k", [(1.0, 1.0), (2.5, 0.4)])
 def test_stress_tensor_from_identities_matches_holographic_renormalisation(mass2, lam, k):
     # second route (used for rational falloffs): T s, the trace Ward identity and the radial

@@ -571,7 +571,9 @@ def _polished_values(sol):
         return None
     try:
         pol = polish(sol)
-    except NotImplementedError:
+    except (NotImplementedError, TypeError, ValueError, ArithmeticError):
+        # e.g. a model function without a long-double loop (some scipy.special ufuncs):
+        # the double data stand, and extended_precision = 0 says so
         return None
     return pol.fields if pol is not None and pol.improved else None
 
