@@ -154,7 +154,9 @@ def test_a_model_without_long_double_support_falls_back_to_double(mass2, monkeyp
 @pytest.mark.parametrize("lam, k", [(1.0, 1.0), (2.5, 0.4)])
 def test_stress_tensor_from_identities_matches_holographic_renormalisation(mass2, lam, k):
     # second route (used for rational falloffs): T s, the trace Ward identity and the radial
-    # anisotropy integral for p_x - p_y (docs section j) against the counterterm stress tensor
+    # anisotropy integral for p_x - p_y (docs section j) against the counterterm stress tensor.
+    # energy + p_y = T s (radially conserved Noether charge) and the trace Ward identity are
+    # common practice ("Holographic renormalization", hep-th/0112119, for the latter)
     from spectral_bulk.holography._branes import anisotropy_integral, stress_from_identities
 
     bg = QLatticeBrane(mass2, n=24)

@@ -158,9 +158,9 @@ def _five_point(fun, x0, h):
 @pytest.mark.parametrize("quantization", ["standard", "alternative"])
 def test_stress_tensor_from_the_identities_obeys_the_first_law(model, quantization):
     # the stress tensor of a rational falloff comes from T s, the trace Ward identity and the
-    # anisotropy integral; two thermodynamic identities it does not use check it:
-    # the first law <O> = -df/dJ at fixed T and k, and p_x = -f + k df/dk at fixed T and J
-    # (a rescaling of x changes k; common practice for lattices along x)
+    # anisotropy integral; two thermodynamic identities it does not use check it (both common
+    # practice): the first law <O> = -df/dJ at fixed T and k, and p_x = -f + k df/dk at fixed
+    # T and J (a rescaling of x changes k, for lattices along x)
     bg = QLatticeBrane(model, quantization=quantization, n=30, n_max=30, tol=1e-12)
     lam0, k0, h = 0.8, 1.2, 0.02
     sol = bg.solve(lam=lam0, k=k0)
