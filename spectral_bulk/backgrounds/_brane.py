@@ -39,8 +39,9 @@ a sum of ``3 - 2 Delta_-``, ``2 Delta_-``, 2 and 3.  With ``a = Delta_-``, ``n =
 
 Boundary rows: ``A = B = C = 1`` and ``psi = lambda`` (standard) or ``psi^(n)(0)/n! = J/(3-2a)``
 (alternative, ``n <= 2``); horizon rows as above.  ``s``, ``T``, the source and ``<O>`` are
-reported; the stress tensor (the ``u^{3p}`` Taylor coefficient of the metric) is not
-(``docs/physics/black_branes.md`` section i).  The integer case (``p = 1``) is unchanged.
+read off directly; the stress tensor, whose ``u^{3p}`` Taylor coefficient is out of reach, from
+``T s``, the trace Ward identity and a radial integral (``docs/physics/black_branes.md``
+sections i and j).  The integer case (``p = 1``) is unchanged.
 """
 
 import math
