@@ -114,13 +114,19 @@ def test_polish_bratu_against_its_closed_form():
     assert err_ext < 1e-17 and err_ext < err_double / 100, (err_ext, err_double)
 
 
-def test_polish_factorises_anew_when_the_result_kept_no_factorisation():
-    res = solve(_linear_problem(40), 0.0, tol=1e-13)
-    kept = polish(res)
-    res._jacobian_solver = None  # as for large problems and results made elsewhere
-    fresh = polish(res)
-    assert fresh.improved
-    assert np.abs(fresh.state - kept.state).max() < 1e-17
+def test_polish_with_the_kept_factorisation_matches_a_fresh_one():
+    # plain solve() results keep no factorisation (stored results would hold n^2 arrays);
+    # the internal keep_factor path (branes) reuses Newton's last one
+    from spectral_bulk.newton._newton import NewtonOptions, _newton, initial_state
+
+    pr = _linear_problem(40)
+    res = solve(pr, 0.0, tol=1e-13)
+    assert getattr(res, "_jacobian_solver", None) is None
+    kept = _newton(pr, initial_state(pr, 0.0), {}, NewtonOptions(tol=1e-13).validated(), keep_factor=True)
+    assert kept._jacobian_solver is not None
+    a, b = polish(res), polish(kept)
+    assert a.improved and b.improved
+    assert np.abs(a.state - b.state).max() < 1e-17
 
 
 def test_polish_needs_a_wider_type():

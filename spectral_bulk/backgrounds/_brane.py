@@ -489,8 +489,9 @@ class Brane:
         from ..newton._newton import _newton, initial_state
 
         u0 = initial_state(pr, guess)
+        # the last factorisation serves the extended-precision refinement of the observables
         return _newton(pr, u0, params, NewtonOptions(tol=self.tol, tail_tol=self.tail_tol,
-                                                     max_iter=40).validated())
+                                                     max_iter=40).validated(), keep_factor=self.extended)
 
     def _homotopy(self, start, target):
         """Continue from the start (or the trivial background) to the target, one parameter at a time."""

@@ -107,10 +107,6 @@ class NewtonOptions:
         return out
 
 
-#: results of problems up to this many unknowns keep their last dense factorisation
-KEEP_FACTOR_SIZE = 600
-
-
 _DEFAULT_OPTIONS = {}  # validated defaults by shortcut values (solve is called in tight loops)
 
 
@@ -267,7 +263,13 @@ def solve(problem, guess, *, params=None, tol=None, max_iter=None, damping=None,
 solve.__doc__ = solve.__doc__.replace("{status_docs}", _status_docs().replace("\n", "\n    "))
 
 
-def _newton(problem, u, params, opts, first_is_input=False):
+def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False):
+    """The Newton iteration behind :func:`solve`.
+
+    ``keep_factor``: a converged result keeps its last dense factorisation as
+    ``_jacobian_solver`` (for :func:`~spectral_bulk.newton.polish`; the caller drops it when
+    done, so that stored results do not hold n^2 arrays).
+    """
     tol = opts.tol
     info = dict(nfev=0, njev=0, residual_norms=[], update_norms=[], damping=[], tol=tol)
     fmt = dict(tol=tol, max_iter=opts.max_iter, lambda_min=opts.lambda_min, tail_tol=opts.tail_tol,
@@ -298,9 +300,7 @@ def _newton(problem, u, params, opts, first_is_input=False):
         res = SolveResult(problem, state, params, status=status, message=MESSAGES[status].format(**fmt),
                           iterations=info["njev"], residual=r, update=fmt["update"], tail=tail,
                           condition=rcond, linear_solver=getattr(solver, "kind", None), **info)
-        # the last dense factorisation of a small problem, for refinement (polish) at the
-        # returned state; larger ones are not kept alive (polish factorises anew)
-        keep = status == 0 and getattr(solver, "kind", None) == "dense" and problem.size <= KEEP_FACTOR_SIZE
+        keep = keep_factor and status == 0 and getattr(solver, "kind", None) == "dense"
         res._jacobian_solver = solver if keep else None
         return res
 

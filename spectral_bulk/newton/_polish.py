@@ -31,7 +31,8 @@ REDUCTION = 1e-3
 
 
 def _jacobian_solve(result):
-    """``rhs -> J^{-1} rhs`` with the Newton iteration's last factorisation, or a new LU."""
+    """``rhs -> J^{-1} rhs`` with the Newton iteration's last factorisation (kept on results
+    made with ``keep_factor``, as the branes do), or a new LU."""
     solver = getattr(result, "_jacobian_solver", None)
     if solver is not None and getattr(solver, "kind", None) == "dense":
         return solver.solve
