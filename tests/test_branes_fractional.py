@@ -176,14 +176,6 @@ def test_stress_tensor_from_the_identities_obeys_the_first_law(model, quantizati
     assert abs(obs["p_x"] - (-obs["f"] + k0 * dfdk)) < 1e-9 * abs(obs["p_x"])
 
 
-def test_irrational_falloff_is_refused():
-    # m^2 = -2.1: Delta_- irrational, no power z = u^p makes the expansion analytic
-    m = QLatticeModel(lambda r: -6 - 1.05 * r**2, lambda r: r**2)
-    with pytest.warns(ResolutionWarning, match="irrational"):
-        with pytest.raises(ProblemDefinitionError, match="radial power"):
-            QLatticeBrane(m)
-
-
 def test_logarithmic_case_is_refused_with_its_cause():
     # Delta_- = 3/4: the rho^3 back-reaction term z^{3 Delta_-} = z^{9/4} hits z^{Delta_+}
     a = 0.75
