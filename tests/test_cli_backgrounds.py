@@ -42,8 +42,6 @@ def test_rational_falloff_config_reports_the_stress_tensor_with_its_action_certi
     assert code == 0, stdout
     with xr.open_dataset(out) as ds:
         assert ds.attrs["obs_stress_from_identities"] == 1 and ds.attrs["obs_action"] < 1e-9
-        # p_y = -f and the trace Ward identity hold by construction on this route
-        assert abs(ds.attrs["obs_p_y"] + ds.attrs["obs_f"]) < 1e-12 * ds.attrs["obs_p_y"]
 
 
 def test_brane_config_can_skip_the_extended_precision_refinement(tmp_path, capsys):

@@ -225,9 +225,7 @@ class Problem:
                         names.append((f + suffix, i, k))
             faces = [(key, fun, self.grid.faces[face]) for face, (key, fun) in self.boundary.items()
                      if fun is not None]
-            coords = Namespace(dict(self.grid.coords), "coordinate")
-            face_coords = [Namespace({n: c[idx] for n, c in self.grid.coords.items()}, "coordinate")
-                           for _, _, idx in faces]
+            coords, face_coords = _coordinate_namespaces(self.grid.coords, faces)
             dstack = None
             if self.grid.ndim == 1:
                 d = self.grid.axes[0].diff_matrices(self.max_order)
@@ -322,10 +320,8 @@ class Problem:
         p = Namespace(params, "parameter")
         if coords is None:
             coords, face_coords = plan["coords"], plan["face_coords"]
-        else:  # a dict name -> coordinate array
-            face_coords = [Namespace({n: c[idx] for n, c in coords.items()}, "coordinate")
-                           for _, _, idx in plan["faces"]]
-            coords = Namespace(coords, "coordinate")
+        else:
+            coords, face_coords = _coordinate_namespaces(coords, plan["faces"])
         eq = self._call(self.equations, coords, dvals, p, f"equations {self.name!r}", npts)
         for i, e in enumerate(eq):
             if e is None:
@@ -466,6 +462,12 @@ class Problem:
                 f"the residual is not finite at the initial guess in the equation(s) of {bad}"
             )
         return F
+
+
+def _coordinate_namespaces(coords, faces):
+    """Coordinate namespaces of the whole grid and of each face ``(key, fun, idx)``."""
+    return (Namespace(dict(coords), "coordinate"),
+            [Namespace({n: c[idx] for n, c in coords.items()}, "coordinate") for _, _, idx in faces])
 
 
 def complex_step_perturbation(nf, na):
