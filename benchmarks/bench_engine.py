@@ -67,8 +67,7 @@ from spectral_bulk.newton import (  # noqa: E402
     assemble_dense,
     check_jacobian,
     jacobian_action,
-    make_solver,
-    residual_norm,
+    initial_state,
     solve,
 )
 from spectral_bulk.newton._linalg import assemble_sparse  # noqa: E402  (breakdown only)
@@ -377,28 +376,30 @@ def bench_bratu(quick, log):
     for k in bvp_keys:
         out["ratios"][f"{k}/spectral_bulk (each)"] = over_spectral(k)
 
-    # -- where a spectral solve spends its time: per-call costs times call counts
+    # -- where a spectral solve spends its time: per-call costs of the operations of the
+    #    1-D dense workspace that solve() uses, times their call counts
     u = res.state
-    F, A = prob.linearize(u)
-    solver = make_solver(prob, A, "dense")
+    ws = make_workspace(prob, prob.merged_params(), NewtonOptions(tol=chosen["tol"]).validated())
+    if type(ws).__name__ != "DenseWorkspace":
+        raise RuntimeError(f"expected the dense 1-D workspace, got {type(ws).__name__}")
+    F, A = ws.linearize(u)
+    st = ws.step(u, F, A)
     parts = {
-        "linearize": lambda: prob.linearize(u),
-        "residual": lambda: prob.residual(u),
-        "make_solver(dense)": lambda: make_solver(prob, A, "dense"),
-        "lu_solve": lambda: solver.solve(F),
-        "residual_norm": lambda: residual_norm(prob, F, A, u),
-        "grid.tail": lambda: prob.grid.tail(prob.split(u), prob.scales),
-        "check(guess)": lambda: prob.check(u),
+        "ws.linearize": lambda: ws.linearize(u),
+        "ws.step (assembly, LU, correction)": lambda: ws.step(u, F, A),
+        "ws.trial (callbacks, simplified correction)": lambda: ws.trial(u, 1.0, st.dx, st, True, True),
+        "ws.tails": lambda: ws.tails(u),
+        "ws.backward_error": lambda: ws.backward_error(F, A, u),
+        "initial_state(guess)": lambda: initial_state(prob, _zero_guess),
     }
     pt = _common.interleaved(parts, 5 if quick else 11, min_sample=0.005, warmup=True)
     per_call = {k: timing_summary(v)["median_s"] for k, v in pt.items()}
-    # calls per solve, from the result counters and the code path of solve():
-    # njev linearize + njev factorisations; nfev - njev residuals (trial steps, check
-    # and certificate); one lu_solve per step plus one per damping test;
-    # residual_norm per iteration plus one in the certificate
-    counts = {"linearize": res.njev, "residual": res.nfev - res.njev, "make_solver(dense)": res.njev,
-              "lu_solve": res.njev + len(res.damping), "residual_norm": res.njev + 1, "grid.tail": 1,
-              "check(guess)": 1}
+    # calls per solve, from the result counters and the code path of solve(): one
+    # linearisation at the guess and one for the certificate; one step per Jacobian
+    # evaluation; every other evaluation is a trial point
+    counts = {"ws.linearize": 2, "ws.step (assembly, LU, correction)": res.njev,
+              "ws.trial (callbacks, simplified correction)": res.nfev - 2, "ws.tails": 1,
+              "ws.backward_error": 1, "initial_state(guess)": 1}
     accounted = {k: per_call[k] * counts[k] for k in per_call}
     out["spectral_breakdown"] = {"per_call_s": per_call, "calls_per_solve": counts,
                                  "accounted_s": accounted, "accounted_total_s": float(sum(accounted.values())),
@@ -494,8 +495,7 @@ def bench_coupled_1d(quick, log):
 
     def newton_step():
         F_, A_ = ws.linearize(u0)
-        ws.prepare(u0, F_, A_)
-        return -ws.factor(A_).solve(F_)
+        return ws.step(u0, F_, A_).dx
 
     def lu_only():
         return sla.lu_factor(J, check_finite=False)
@@ -745,8 +745,8 @@ def main(argv=None):
     print("Where a spectral Bratu solve spends its time (median per call x calls per solve)")
     sb = a["spectral_breakdown"]
     for k, v in sb["per_call_s"].items():
-        print(f"  {k:28s} {fmt_time(v)} x {sb['calls_per_solve'][k]:2d} = {fmt_time(sb['accounted_s'][k])}")
-    print(f"  {'accounted':28s} {fmt_time(sb['accounted_total_s'])}   measured solve "
+        print(f"  {k:44s} {fmt_time(v)} x {sb['calls_per_solve'][k]:2d} = {fmt_time(sb['accounted_s'][k])}")
+    print(f"  {'accounted':44s} {fmt_time(sb['accounted_total_s'])}   measured solve "
           f"{fmt_time(sb['measured_solve_s'])}")
     print("  profile, own time (indicative):")
     for r in a["spectral_profile"][:8]:

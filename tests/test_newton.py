@@ -281,8 +281,15 @@ def test_status_linear_solver_failure(monkeypatch, workspace):
         def solve(self, rhs):
             return np.full_like(rhs, np.nan)
 
+    def broken_update(lu, piv, rscale, F, w, dx, min_ratio):  # the dense workspace's compiled solve
+        dx[:] = np.nan
+        return 1.0, np.nan
+
     for cls in (DenseWorkspace, GenericWorkspace):
         monkeypatch.setattr(cls, "factor", lambda *a, **k: Broken())
+    from spectral_bulk.newton._kernels import dispatchers
+
+    monkeypatch.setattr(dispatchers(), "newton_update", broken_update)
     with pytest.warns(ConvergenceWarning, match="linear solver"):
         res = sb.solve(bratu_problem(12, 1.0), 0.0, options=NewtonOptions(workspace=workspace))
     assert res.status == 7

@@ -295,3 +295,106 @@ def test_fill_batch_kernel_matches_numpy(compiled):
     (K.fill_batch if compiled else K._fill_batch_py)(u, dstack, _H, buf)
     np.testing.assert_allclose(buf.real, ref.real, rtol=1e-13, atol=1e-13 * np.abs(ref.real).max())
     np.testing.assert_array_equal(buf.imag, ref.imag)
+
+
+# ------------------------------------------------ fused step and trial kernels
+def _factors(rng, size):
+    # a matrix that needs row interchanges (small leading diagonal), as LAPACK getrf factors it
+    import scipy.linalg as sla
+
+    M = rng.normal(size=(size, size)) + np.diag(np.full(size, 1e-3))
+    rscale = 1.0 / np.abs(M).max(axis=1)
+    lu, piv, info = sla.lapack.dgetrf(np.asfortranarray(M * rscale[:, None]))
+    assert info == 0 and np.any(piv != np.arange(size))
+    return M, lu, piv, rscale
+
+
+@pytest.mark.parametrize("compiled", [True, False])
+def test_lu_solve_kernel_matches_lapack(compiled):
+    # reference: scipy.linalg.lu_solve on the same getrf factors (LAPACK getrs)
+    import scipy.linalg as sla
+
+    rng = np.random.default_rng(5)
+    M, lu, piv, rscale = _factors(rng, 23)
+    rhs = rng.normal(size=23)
+    out = np.empty(23)
+    (K.lu_solve if compiled else K._lu_solve_py)(lu, piv, rscale, rhs, out)
+    ref = -sla.lu_solve((lu, piv), rscale * rhs)
+    np.testing.assert_allclose(out, ref, rtol=1e-12, atol=1e-12 * np.abs(ref).max())
+    np.testing.assert_allclose(M @ out, -rhs, atol=1e-10 * np.abs(rhs).max())
+
+
+@pytest.mark.parametrize("compiled", [True, False])
+def test_newton_update_and_trial_kernels_match_numpy(compiled):
+    import scipy.linalg as sla
+    from spectral_bulk.newton._problem import _H, complex_step_perturbation
+
+    pick = (lambda c, p: c) if compiled else (lambda c, p: p)
+    problem, _, _, u = _random_case(13)
+    nf, na, n = problem.nfields, len(problem.alphas), problem.grid.size
+    rng = np.random.default_rng(2)
+    _, lu, piv, rscale = _factors(rng, nf * n)
+    w = field_weights(problem, u)
+    F = rng.normal(size=nf * n)
+    dx = np.empty(nf * n)
+    ratio, ndx = pick(K.newton_update, K._newton_update_py)(lu, piv, rscale, F, w, dx, 1e-12)
+    ref = -sla.lu_solve((lu, piv), rscale * F)
+    d = np.abs(np.diag(lu))
+    assert ratio == pytest.approx(d.min() / d.max(), rel=1e-15)
+    np.testing.assert_allclose(dx, ref, rtol=1e-12, atol=1e-12 * np.abs(ref).max())
+    assert ndx == pytest.approx(_snorm(ref, w), rel=1e-12)
+    # a suspect factorisation (pivot ratio below the threshold) is left to the caller
+    assert np.isnan(pick(K.newton_update, K._newton_update_py)(lu, piv, rscale, F, w, dx, 2 * ratio)[1])
+
+    # the trial point and its batch
+    dstack = problem._plan()["dstack"]
+    trial = np.empty(nf * n)
+    buf = np.empty((nf, na, nf * na + 1, n), dtype=complex)
+    pick(K.trial_point, K._trial_point_py)(u, 0.3, dx, trial, dstack, _H, buf)
+    np.testing.assert_allclose(trial, u + 0.3 * dx, rtol=1e-15, atol=0)
+    want = (trial.reshape(nf, n) @ dstack).reshape(nf, na, 1, n) + complex_step_perturbation(nf, na)
+    np.testing.assert_allclose(buf.real, want.real, rtol=1e-13, atol=1e-13 * np.abs(want.real).max())
+    np.testing.assert_array_equal(buf.imag, want.imag)
+
+    # what the damping test needs at the trial point, against split_rows, LAPACK and the norms
+    rows = rng.normal(size=(nf, nf * na + 1, n)) + 1j * rng.normal(size=(nf, nf * na + 1, n)) * 1e-30
+    rows[:, -1, :].imag = 0.0
+    Ft, At, dxbar = np.empty(nf * n), np.empty((nf, nf, na, n)), np.empty(nf * n)
+    finite, nbar, dd, nnew = pick(K.after_trial, K._after_trial_py)(
+        rows, 1 / _H, Ft, At, lu, piv, rscale, dx, 0.3, w, trial, problem.scales, dxbar)
+    Fr, Ar = split_rows(rows, nf, na, n)
+    bar = -sla.lu_solve((lu, piv), rscale * Fr)
+    assert finite
+    np.testing.assert_allclose(Ft, Fr, rtol=0)
+    np.testing.assert_allclose(At, Ar, rtol=1e-15)
+    np.testing.assert_allclose(dxbar, bar, rtol=1e-12, atol=1e-12 * np.abs(bar).max())
+    assert nbar == pytest.approx(_snorm(bar, w), rel=1e-12)
+    assert dd == pytest.approx(_snorm(bar - 0.7 * dx, w), rel=1e-12)
+    assert nnew == pytest.approx(_snorm(bar, field_weights(problem, trial)), rel=1e-12)
+    rows[2, -1, 5] += 1e-3j  # the trial left the real domain at one point
+    assert not pick(K.after_trial, K._after_trial_py)(rows, 1 / _H, Ft, At, lu, piv, rscale, dx, 0.3, w,
+                                                      trial, problem.scales, dxbar)[0]
+
+
+def test_dense_step_and_trial_match_generic():
+    # the fused operations of the 1-D workspace against the generic composition
+    problem, _ = coupled()
+    params, opts = {}, NewtonOptions().validated()
+    dense, generic = DenseWorkspace(problem, params, opts), GenericWorkspace(problem, params, opts)
+    x = problem.grid.coords["x"]
+    u = np.concatenate([1 - x**2 / 3, 0.4 * (1 + x), x])
+    steps = []
+    for ws in (dense, generic):
+        F, A = ws.linearize(u)
+        st = ws.step(u, F, A)
+        tr = ws.trial(u, 0.5, st.dx, st, True, True)
+        steps.append((st, tr))
+    (sd, td), (sg, tg) = steps
+    assert sd.status == sg.status == 0
+    np.testing.assert_allclose(sd.dx, sg.dx, rtol=0, atol=1e-12 * np.abs(sg.dx).max())
+    np.testing.assert_allclose([sd.ndx, sd.rnorm], [sg.ndx, sg.rnorm], rtol=1e-12)
+    np.testing.assert_allclose(td.u, tg.u, rtol=0, atol=1e-13 * np.abs(tg.u).max())
+    # the trial points differ by rounding, amplified in F by the second-derivative matrices
+    np.testing.assert_allclose(td.F, tg.F, rtol=0, atol=1e-11 * np.abs(tg.F).max())
+    np.testing.assert_allclose(td.dxbar, tg.dxbar, rtol=0, atol=1e-11 * np.abs(tg.dxbar).max())
+    np.testing.assert_allclose([td.nbar, td.dd, td.nnew], [tg.nbar, tg.dd, tg.nnew], rtol=1e-10)

@@ -14,11 +14,14 @@ numba is imported when a kernel is first needed, so importing the package stays
 cheap.
 """
 
+import types
+
 import numpy as np
 
 __all__ = ["prepare_dense", "prepare_dense_reference", "pivot_ratio", "scaled_norm_kernel",
            "damping_norms", "chebyshev_tails", "split_rows_kernel",
-           "field_weights_kernel", "fill_batch"]
+           "field_weights_kernel", "fill_batch", "lu_solve", "newton_update", "trial_point",
+           "after_trial", "dispatchers"]
 
 _COMPILED = {}
 
@@ -244,52 +247,186 @@ def _fill_batch_py(u, dstack, h, buf):
                 buf[i, k, i * na + k, p] = complex(acc, h)
 
 
-def _compiled(name, fun):
+def _lu_solve_py(lu, piv, rscale, rhs, out):
+    """``out = -M^{-1} (rscale * rhs)`` from LAPACK ``getrf`` factors of ``M`` (as ``getrs``).
+
+    ``lu`` holds the unit lower and the upper triangular factors, ``piv`` the
+    0-based row interchanges applied in order.  Column-oriented loops suit the
+    Fortran-ordered factor.  The minus sign is the Newton correction's.
+    """
+    n = lu.shape[0]
+    for r in range(n):
+        out[r] = rscale[r] * rhs[r]
+    for i in range(n):
+        j = piv[i]
+        if j != i:
+            t = out[i]
+            out[i] = out[j]
+            out[j] = t
+    for j in range(n):
+        x = out[j]
+        if x != 0.0:
+            for i in range(j + 1, n):
+                out[i] -= lu[i, j] * x
+    for j in range(n - 1, -1, -1):
+        out[j] /= lu[j, j]
+        x = out[j]
+        if x != 0.0:
+            for i in range(j):
+                out[i] -= lu[i, j] * x
+    for r in range(n):
+        out[r] = -out[r]
+
+
+def _newton_update_py(lu, piv, rscale, F, w, dx, min_ratio):
+    """The Newton correction after ``getrf``: pivot screen, ``dx = -J^{-1} F`` and its norm.
+
+    Returns ``(ratio, ndx)`` with ``ratio`` the pivot ratio of :func:`_pivot_ratio_py`;
+    when ``ratio <= min_ratio`` (a suspect factorisation, left to the caller's condition
+    estimate) ``dx`` is not computed and ``ndx`` is NaN.
+    """
+    n = lu.shape[0]
+    lo, hi = np.inf, 0.0
+    for i in range(n):
+        d = abs(lu[i, i])
+        if not np.isfinite(d):
+            return 0.0, np.nan
+        lo = min(lo, d)
+        hi = max(hi, d)
+    ratio = lo / hi if hi > 0 else 0.0
+    if ratio <= min_ratio:
+        return ratio, np.nan
+    _lu_solve_py(lu, piv, rscale, F, dx)
+    return ratio, _scaled_norm_py(dx, w)
+
+
+def _trial_point_py(u, lam, dx, trial, dstack, h, buf):
+    """``trial = u + lam dx`` and the complex-step batch at it (as :func:`_fill_batch_py`)."""
+    for r in range(u.shape[0]):
+        trial[r] = u[r] + lam * dx[r]
+    _fill_batch_py(trial, dstack, h, buf)
+
+
+def _after_trial_py(rows, inv_h, Ft, At, lu, piv, rscale, dx, lam, w, trial, scales, dxbar):
+    """Everything the damping test needs from the linearisation at a trial point.
+
+    Splits the complex-step ``rows`` into ``Ft`` and ``At`` (:func:`_split_rows_py`);
+    if ``Ft`` is finite, computes the simplified correction ``dxbar = -J^{-1} Ft`` with the
+    current factors and returns ``(True, nbar, dd, nnew)``: ``nbar, dd`` the two
+    damping-test norms of :func:`_damping_norms_py` and ``nnew`` the norm of ``dxbar`` in
+    the weights of ``trial``.  A non-finite ``Ft`` returns ``(False, nan, nan, nan)``.
+    """
+    _split_rows_py(rows, inv_h, Ft, At)
+    for r in range(Ft.shape[0]):
+        if not np.isfinite(Ft[r]):
+            return False, np.nan, np.nan, np.nan
+    _lu_solve_py(lu, piv, rscale, Ft, dxbar)
+    nbar, dd = _damping_norms_py(dxbar, dx, lam, w)
+    nf = scales.shape[0]
+    wt = np.empty(nf)
+    _field_weights_py(trial, scales, wt)
+    return True, nbar, dd, _scaled_norm_py(dxbar, wt)
+
+
+def _compiled(fun):
+    """The numba-compiled ``fun`` (compiled once per process, cached on disk).
+
+    A kernel may call other ``*_py`` bodies of this module: those are compiled first
+    and bound in place of the plain functions (numba calls only compiled functions).
+    """
+    name = fun.__name__
     if name not in _COMPILED:
         import numba
 
+        helpers = {g: globals()[g] for g in fun.__code__.co_names
+                   if g.endswith("_py") and g in globals() and g != fun.__name__}
+        if helpers:
+            scope = dict(fun.__globals__)
+            scope.update({g: _compiled(h) for g, h in helpers.items()})
+            fun = types.FunctionType(fun.__code__, scope, fun.__name__, fun.__defaults__)
         _COMPILED[name] = numba.njit(cache=True, nogil=True)(fun)
     return _COMPILED[name]
 
 
+_KERNELS = {"prepare_dense": "_prepare_dense_py", "newton_update": "_newton_update_py",
+            "trial_point": "_trial_point_py", "after_trial": "_after_trial_py",
+            "fill_batch": "_fill_batch_py", "split_rows": "_split_rows_py",
+            "scaled_norm": "_scaled_norm_py", "damping_norms": "_damping_norms_py",
+            "field_weights": "_field_weights_py", "chebyshev_tails": "_chebyshev_tails_py"}
+_DISPATCH = None
+
+
+def dispatchers():
+    """The compiled kernels of the workspace as attributes, by the names of their wrappers.
+
+    Hot loops call these directly (one call instead of a wrapper and a lookup); arguments
+    must already have the kernels' types (``lam`` a float).
+    """
+    global _DISPATCH
+    if _DISPATCH is None:
+        _DISPATCH = types.SimpleNamespace(**{k: _compiled(globals()[v]) for k, v in _KERNELS.items()})
+    return _DISPATCH
+
+
+def lu_solve(lu, piv, rscale, rhs, out):
+    """Compiled :func:`_lu_solve_py`."""
+    _compiled(_lu_solve_py)(lu, piv, rscale, rhs, out)
+
+
+def newton_update(lu, piv, rscale, F, w, dx, min_ratio):
+    """Compiled :func:`_newton_update_py`."""
+    return _compiled(_newton_update_py)(lu, piv, rscale, F, w, dx, min_ratio)
+
+
+def trial_point(u, lam, dx, trial, dstack, h, buf):
+    """Compiled :func:`_trial_point_py`."""
+    _compiled(_trial_point_py)(u, float(lam), dx, trial, dstack, h, buf)
+
+
+def after_trial(rows, inv_h, Ft, At, lu, piv, rscale, dx, lam, w, trial, scales, dxbar):
+    """Compiled :func:`_after_trial_py`."""
+    return _compiled(_after_trial_py)(rows, inv_h, Ft, At, lu, piv, rscale, dx, float(lam),
+                                                    w, trial, scales, dxbar)
+
+
 def prepare_dense(A, D, R, F, u, scales, J, w, rscale, assemble=True):
     """Compiled :func:`_prepare_dense_py` (see there for the arguments)."""
-    return _compiled("prepare_dense", _prepare_dense_py)(A, D, R, F, u, scales, J, w, rscale, assemble)
+    return _compiled(_prepare_dense_py)(A, D, R, F, u, scales, J, w, rscale, assemble)
 
 
 def pivot_ratio(lu):
     """Compiled :func:`_pivot_ratio_py`."""
-    return _compiled("pivot_ratio", _pivot_ratio_py)(lu)
+    return _compiled(_pivot_ratio_py)(lu)
 
 
 def scaled_norm_kernel(dx, w):
     """Compiled :func:`_scaled_norm_py`."""
-    return _compiled("scaled_norm", _scaled_norm_py)(dx, w)
+    return _compiled(_scaled_norm_py)(dx, w)
 
 
 def field_weights_kernel(u, scales, w):
     """Compiled :func:`_field_weights_py`."""
-    _compiled("field_weights", _field_weights_py)(u, scales, w)
+    _compiled(_field_weights_py)(u, scales, w)
 
 
 def fill_batch(u, dstack, h, buf):
     """Compiled :func:`_fill_batch_py`."""
-    _compiled("fill_batch", _fill_batch_py)(u, dstack, h, buf)
+    _compiled(_fill_batch_py)(u, dstack, h, buf)
 
 
 def split_rows_kernel(rows, inv_h, F, A):
     """Compiled :func:`_split_rows_py`."""
-    _compiled("split_rows", _split_rows_py)(rows, inv_h, F, A)
+    _compiled(_split_rows_py)(rows, inv_h, F, A)
 
 
 def damping_norms(a, b, lam, w):
     """Compiled :func:`_damping_norms_py`."""
-    return _compiled("damping_norms", _damping_norms_py)(a, b, float(lam), w)
+    return _compiled(_damping_norms_py)(a, b, float(lam), w)
 
 
 def chebyshev_tails(u, C, scales, out):
     """Compiled :func:`_chebyshev_tails_py`."""
-    return _compiled("chebyshev_tails", _chebyshev_tails_py)(u, C, scales, out)
+    return _compiled(_chebyshev_tails_py)(u, C, scales, out)
 
 
 def prepare_dense_reference(problem, A, F, u):

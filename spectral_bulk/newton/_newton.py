@@ -11,12 +11,13 @@ this guess.  Norms are the scaled update norm defined in :class:`NewtonOptions`.
 """
 
 import dataclasses
+import math
 import time
 
 import numpy as np
 
 from .._utils import EPS, emit_user_level_warning, validate_tol
-from ..exceptions import ConvergenceError, ConvergenceWarning, ProblemDefinitionError, SingularJacobianError
+from ..exceptions import ConvergenceError, ConvergenceWarning, ProblemDefinitionError
 from ._linalg import assemble_dense
 from ._problem import Problem
 from ._result import SolveResult
@@ -306,8 +307,9 @@ def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False):
 
     lam = opts.lambda_init
     prev = None  # (norm dx, dxbar, lam) of the previous iteration
-    solver = None
+    step = None
     pending = None  # linearisation of the accepted trial point, if any
+    linearize_trial = reuse and opts.damping
     for _ in range(opts.max_iter):
         if pending is not None:
             F, A = pending
@@ -316,23 +318,22 @@ def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False):
             F, A = ws.linearize(u)
             info["nfev"] += 1
         info["njev"] += 1
-        finite, w_u, rnorm = ws.prepare(u, F, A)
-        if not finite:
+        last = step
+        step = ws.step(u, F, A)
+        if step.status == 3:
             if first_is_input and info["njev"] == 1:
                 problem.check(u, params)  # raises, naming the equations that are not finite
             fmt["where"] = "in the residual or its linearisation at iteration " + str(info["njev"])
             return finish(3, u, F=F)
-        info["residual_norms"].append(rnorm)
-        try:
-            solver = ws.factor(A)
-            dx = -solver.solve(F)
-        except SingularJacobianError:
-            return finish(2, u, A=A, F=F, solver=solver)
-        except (ValueError, RuntimeError) as exc:  # pragma: no cover - defensive
-            fmt["why"] = str(exc)
+        info["residual_norms"].append(step.rnorm)
+        if step.status == 2:
+            # a factorisation that failed outright reports the previous one's condition
+            return finish(2, u, A=A, F=F, solver=step.solver or (last and last.solver))
+        if step.status == 7:  # pragma: no cover - defensive
+            fmt["why"] = step.why
             return finish(7, u, A=A, F=F)
-        ndx = ws.norm(dx, w_u)  # NaN or inf when dx is not finite
-        if not np.isfinite(ndx):
+        solver, dx, ndx, w_u = step.solver, step.dx, step.ndx, step.w
+        if not ndx < math.inf:  # NaN or inf: dx is not finite
             fmt["why"] = "non-finite Newton update"
             return finish(7, u, A=A, F=F)
         info["update_norms"].append(ndx)
@@ -350,13 +351,9 @@ def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False):
             if lam < opts.lambda_min:
                 fmt["update"] = ndx
                 return finish(4, u, A=A, F=F, solver=solver)
-            trial = u + lam * dx
-            if reuse and opts.damping:
-                Ft, At = ws.linearize(trial)
-            else:
-                Ft, At = ws.residual(trial), None
+            t = ws.trial(u, lam, dx, step, linearize_trial, opts.damping)
             info["nfev"] += 1
-            if not np.isfinite(Ft).all():
+            if not t.finite:
                 if not opts.damping:
                     fmt["where"] = f"after an undamped step at iteration {info['njev']}"
                     return finish(3, u, A=A, F=F, solver=solver)
@@ -364,12 +361,9 @@ def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False):
                 reduced = True
                 continue
             if not opts.damping:
-                dxbar = None
                 break
-            dxbar = -solver.solve(Ft)
-            nbar, dd = ws.damping_norms(dxbar, dx, lam, w_u)
-            theta = nbar / ndx
-            mu_p = 0.5 * ndx * lam**2 / dd if dd > 0 else np.inf
+            theta = t.nbar / ndx
+            mu_p = 0.5 * ndx * lam**2 / t.dd if t.dd > 0 else math.inf
             if theta >= 1 - lam / 4:
                 lam = min(mu_p, lam / 2)
                 reduced = True
@@ -381,13 +375,12 @@ def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False):
                 continue
             break
         info["damping"].append(lam)
-        u = trial
-        if At is not None:
-            pending = (Ft, At)  # a non-finite At is caught when it is prepared
-        nbar = ws.norm(dxbar, ws.weights(u)) if dxbar is not None and lam == 1.0 else np.inf
-        if nbar <= tol:
+        u, dxbar = t.u, t.dxbar
+        if t.A is not None:
+            pending = (t.F, t.A)  # a non-finite A is caught when it is prepared
+        if dxbar is not None and lam == 1.0 and t.nnew <= tol:
             # the simplified-Newton correction is already below tolerance
-            info["update_norms"].append(nbar)
+            info["update_norms"].append(t.nnew)
             if pending is not None:
                 return finish(0, u + dxbar, A=pending[1], solver=solver)
             return finish(0, u + dxbar, A=A, solver=solver)

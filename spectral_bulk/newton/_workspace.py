@@ -13,16 +13,22 @@ workspaces implement the same contract:
   tests compare them); at one-dimensional sizes it removes most of the per-iteration
   cost that is not the user's own residual.
 
-Contract (``ws`` is a workspace bound to a problem and its parameters):
+Contract (``ws`` is a workspace bound to a problem and its parameters).  The Newton
+loop uses the two coarse operations; the fine ones are their parts (and what other
+callers need):
 
+``ws.step(u, F, A) -> Step``
+    the Newton correction at ``u``: finiteness of ``F`` and ``A``, field weights,
+    backward error, factorisation, ``dx = -J^{-1} F`` and its norm (:class:`Step`);
+``ws.trial(u, lam, dx, step, linearize, damped) -> Trial``
+    the trial point ``u + lam dx``, its residual (and linearisation when
+    ``linearize``) and, when ``damped``, the simplified correction with the damping
+    test's norms (:class:`Trial`);
 ``ws.linearize(u) -> (F, A)``
     residual and pointwise coefficients, as :meth:`Problem.linearize`;
 ``ws.residual(u) -> F``;
-``ws.prepare(u, F, A) -> (finite, w, rnorm)``
-    finiteness of ``F`` and ``A``, field weights and backward error; the
-    workspace keeps what :meth:`factor` needs;
-``ws.factor(A) -> solver``
-    a :class:`DenseSolver` or :class:`KrylovSolver` for the Jacobian of ``A``;
+``ws.prepare(u, F, A) -> (finite, w, rnorm)`` and ``ws.factor(A) -> solver``
+    the parts of :meth:`step` (a :class:`DenseSolver` or :class:`KrylovSolver`);
 ``ws.norm(dx, w) -> float``
     the scaled update norm; ``ws.damping_norms(a, b, lam, w)`` gives
     ``(norm(a), norm(a - (1 - lam) b))`` at once;
@@ -30,18 +36,57 @@ Contract (``ws`` is a workspace bound to a problem and its parameters):
     the certificate's residual and spectral tails.
 """
 
+import math
+from typing import NamedTuple
+
 import numpy as np
 import scipy.linalg as sla
 
-from ..exceptions import ProblemDefinitionError
-from ._kernels import (chebyshev_tails, damping_norms, pivot_ratio, prepare_dense, scaled_norm_kernel,
-                       split_rows_kernel, field_weights_kernel, fill_batch)
+from ..exceptions import ProblemDefinitionError, SingularJacobianError
+from ._kernels import dispatchers
 from ._linalg import DenseSolver, make_solver
 from ._problem import _H, Namespace
 
-__all__ = ["GenericWorkspace", "DenseWorkspace", "workspace"]
+__all__ = ["GenericWorkspace", "DenseWorkspace", "workspace", "Step", "Trial"]
 
 _EPS = np.finfo(float).eps
+_MIN_PIVOT_RATIO = 1e4 * _EPS  # below it a factorisation gets the condition estimate
+
+
+class Step(NamedTuple):
+    """One Newton correction (:meth:`GenericWorkspace.step`).
+
+    ``status`` is 0 (``dx`` computed), 3 (``F`` or ``A`` not finite), 2 (singular
+    Jacobian) or 7 (the linear solver failed, ``why`` says how); ``ndx`` may be NaN or
+    inf when ``dx`` is not finite.
+    """
+
+    status: int
+    rnorm: float = math.nan
+    w: np.ndarray | None = None
+    solver: object = None
+    dx: np.ndarray | None = None
+    ndx: float = math.nan
+    why: str = ""
+
+
+class Trial(NamedTuple):
+    """A trial point of the damped iteration (:meth:`GenericWorkspace.trial`).
+
+    ``F`` (and ``A`` when linearised) at ``u``; ``finite`` whether ``F`` is finite; when
+    damped and finite, ``dxbar`` the simplified correction, ``nbar`` and ``dd`` the
+    norms of ``dxbar`` and ``dxbar - (1 - lam) dx`` in the weights of the current
+    point, and ``nnew`` the norm of ``dxbar`` in the weights of ``u``.
+    """
+
+    u: np.ndarray
+    F: np.ndarray
+    A: np.ndarray | None
+    finite: bool
+    dxbar: np.ndarray | None = None
+    nbar: float = math.nan
+    dd: float = math.nan
+    nnew: float = math.nan
 
 
 def _snorm(dx, w):
@@ -71,6 +116,34 @@ class GenericWorkspace:
 
     def __init__(self, problem, params, opts):
         self.problem, self.params, self.opts = problem, params, opts
+
+    def step(self, u, F, A):
+        finite, w, rnorm = self.prepare(u, F, A)
+        if not finite:
+            return Step(3)
+        solver = None
+        try:
+            solver = self.factor(A)
+            dx = -solver.solve(F)
+        except SingularJacobianError:
+            return Step(2, rnorm, w, solver)
+        except (ValueError, RuntimeError) as exc:  # pragma: no cover - defensive
+            return Step(7, rnorm, w, solver, why=str(exc))
+        return Step(0, rnorm, w, solver, dx, self.norm(dx, w))
+
+    def trial(self, u, lam, dx, step, linearize, damped):
+        trial = u + lam * dx
+        if linearize:
+            Ft, At = self.linearize(trial)
+        else:
+            Ft, At = self.residual(trial), None
+        if not np.isfinite(Ft).all():
+            return Trial(trial, Ft, At, False)
+        if not damped:
+            return Trial(trial, Ft, At, True)
+        dxbar = -step.solver.solve(Ft)
+        nbar, dd = self.damping_norms(dxbar, dx, lam, step.w)
+        return Trial(trial, Ft, At, True, dxbar, nbar, dd, self.norm(dxbar, self.weights(trial)))
 
     def linearize(self, u):
         return self.problem.linearize(u, self.params)
@@ -112,11 +185,11 @@ class DenseWorkspace(GenericWorkspace):
     def __init__(self, problem, params, opts):
         super().__init__(problem, params, opts)
         self.c = _cached(problem)
+        self.k = dispatchers()
         self.p = Namespace(params, "parameter")
         size = problem.size
         self.J = np.empty((size, size), order="F")
         self.rscale = np.empty(size)
-        self.anorm = np.nan
         self.generic = False
 
     def linearize(self, u):
@@ -132,12 +205,21 @@ class DenseWorkspace(GenericWorkspace):
             return self.problem.linearize(u, self.params)
 
     def _linearize(self, u):
+        c = self.c
+        self.k.fill_batch(u, c["dstack"], _H, c["buf"])
+        rows = self._rows()
+        F = np.empty(c["nf"] * c["n"])
+        A = np.empty((c["nf"], c["nf"], c["na"], c["n"]))
+        self.k.split_rows(rows, 1 / _H, F, A)
+        return F, A
+
+    def _rows(self):
+        """The callbacks on the batch in ``buf``: complex-step rows (a reused buffer)."""
         c, pr = self.c, self.problem
-        nf, na, n = c["nf"], c["na"], c["n"]
-        fill_batch(u, c["dstack"], _H, c["buf"])
-        rows = c["rowbuf"]  # consumed below: F and A are fresh arrays
+        nf, n = c["nf"], c["n"]
+        rows = c["rowbuf"]  # consumed by the caller: F and A are fresh arrays
         out = pr.equations(c["coords"], c["f"], self.p)
-        if _well_formed(out, nf, c["target"]):
+        if type(out) is list and len(out) == nf and all(getattr(r, "shape", None) == c["target"] for r in out):
             for i in range(nf):
                 rows[i] = out[i]
         else:
@@ -155,24 +237,56 @@ class DenseWorkspace(GenericWorkspace):
             for i, b in enumerate(bc):
                 if b is not None:
                     rows[i, :, sl] = b
-        F = np.empty(nf * n)
-        A = np.empty((nf, nf, na, n))
-        split_rows_kernel(rows, 1 / _H, F, A)
-        return F, A
+        return rows
 
-    def prepare(self, u, F, A):
+    def step(self, u, F, A):
+        if self.generic:
+            return super().step(u, F, A)
         c = self.c
         w = np.empty(c["nf"])
-        finite, rnorm, self.anorm = prepare_dense(A, c["dense"], c["rowsums"], F, u, self.problem.scales,
-                                                  self.J, w, self.rscale)
-        return finite, (w if finite else None), rnorm
-
-    def factor(self, A):
+        finite, rnorm, anorm = self.k.prepare_dense(A, c["dense"], c["rowsums"], F, u, self.problem.scales,
+                                                    self.J, w, self.rscale, True)
+        if not finite:
+            return Step(3)
         lu, piv, info = sla.lapack.dgetrf(self.J, overwrite_a=True)
-        suspect = info != 0 or pivot_ratio(lu) <= 1e4 * _EPS
-        solver = DenseSolver.from_factors(lu, piv, self.rscale.copy(), self.anorm, suspect)
-        self.J = np.empty_like(self.J, order="F")
-        return solver
+        size = F.shape[0]
+        self.J = np.empty((size, size), order="F")  # `lu` holds the old buffer
+        rscale, self.rscale = self.rscale, np.empty(size)
+        dx = np.empty(size)
+        ratio, ndx = self.k.newton_update(lu, piv, rscale, F, w, dx, _MIN_PIVOT_RATIO)
+        suspect = info != 0 or ratio <= _MIN_PIVOT_RATIO
+        solver = DenseSolver.from_factors(lu, piv, rscale, anorm, suspect)
+        if suspect:  # the condition estimate decides (and raises when singular)
+            try:
+                dx = -solver.solve(F)
+            except SingularJacobianError:
+                return Step(2, rnorm, w, solver)
+            ndx = self.norm(dx, w)
+        return Step(0, rnorm, w, solver, dx, ndx)
+
+    def trial(self, u, lam, dx, step, linearize, damped):
+        solver = step.solver
+        if self.generic or not (linearize and damped) or getattr(solver, "lu", None) is None:
+            return super().trial(u, lam, dx, step, linearize, damped)
+        c = self.c
+        nf, na, n = c["nf"], c["na"], c["n"]
+        trial = np.empty(u.shape[0])
+        lam = float(lam)
+        self.k.trial_point(u, lam, dx, trial, c["dstack"], _H, c["buf"])
+        try:
+            rows = self._rows()
+        except ProblemDefinitionError:
+            raise
+        except (ValueError, TypeError, IndexError):
+            self.generic = True  # as in linearize: the generic path copes
+            return super().trial(u, lam, dx, step, linearize, damped)
+        Ft, At, dxbar = np.empty(nf * n), np.empty((nf, nf, na, n)), np.empty(nf * n)
+        finite, nbar, dd, nnew = self.k.after_trial(rows, 1 / _H, Ft, At, solver.lu, solver.piv,
+                                                    solver.rscale, dx, lam, step.w, trial,
+                                                    self.problem.scales, dxbar)
+        if not finite:
+            return Trial(trial, Ft, At, False)
+        return Trial(trial, Ft, At, True, dxbar, nbar, dd, nnew)
 
     def residual(self, u):
         if self.generic:
@@ -180,26 +294,26 @@ class DenseWorkspace(GenericWorkspace):
         return self.linearize(u)[0]
 
     def norm(self, dx, w):
-        return scaled_norm_kernel(dx, w)
+        return self.k.scaled_norm(dx, w)
 
     def weights(self, u):
         w = np.empty(self.c["nf"])
-        field_weights_kernel(u, self.problem.scales, w)
+        self.k.field_weights(u, self.problem.scales, w)
         return w
 
     def damping_norms(self, a, b, lam, w):
-        return damping_norms(a, b, lam, w)
+        return self.k.damping_norms(a, b, float(lam), w)
 
     def backward_error(self, F, A, u):
         c = self.c
         w = np.empty(c["nf"])
-        _, rnorm, _ = prepare_dense(A, c["dense"], c["rowsums"], F, u, self.problem.scales,
-                                    self.J, w, self.rscale, False)
+        _, rnorm, _ = self.k.prepare_dense(A, c["dense"], c["rowsums"], F, u, self.problem.scales,
+                                           self.J, w, self.rscale, False)
         return rnorm
 
     def tails(self, u):
         out = np.empty(self.c["nf"])
-        chebyshev_tails(u, self.c["coeffs"], self.problem.scales, out)
+        self.k.chebyshev_tails(u, self.c["coeffs"], self.problem.scales, out)
         return out
 
 
