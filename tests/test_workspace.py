@@ -214,8 +214,8 @@ def test_prepare_kernel_matches_numpy_reference(seed, compiled):
     size = nf * n
     J, w, rs = np.empty((size, size), order="F"), np.empty(nf), np.empty(size)
     fun = K.prepare_dense if compiled else K._prepare_dense_py
-    ok, rnorm, anorm = fun(A, np.ascontiguousarray(problem._dense_ops()), problem.row_sums(), F, u,
-                           problem.scales, J, w, rs, True)
+    DT = np.ascontiguousarray(problem._dense_ops().transpose(0, 2, 1))
+    ok, rnorm, anorm = fun(A, DT, problem.row_sums(), F, u, problem.scales, J, w, rs, True)
     ok_r, rnorm_r, w_r, J_r, rs_r, anorm_r = K.prepare_dense_reference(problem, A, F, u)
     assert ok and ok_r
     np.testing.assert_allclose(w, w_r, rtol=1e-15)
@@ -224,8 +224,7 @@ def test_prepare_kernel_matches_numpy_reference(seed, compiled):
     np.testing.assert_allclose(J, J_r, rtol=1e-13, atol=1e-15)
     np.testing.assert_allclose(anorm, anorm_r, rtol=1e-13)
     A[1, 2, 1, 3] = np.nan
-    assert not fun(A, np.ascontiguousarray(problem._dense_ops()), problem.row_sums(), F, u,
-                   problem.scales, J, w, rs, True)[0]
+    assert not fun(A, DT, problem.row_sums(), F, u, problem.scales, J, w, rs, True)[0]
 
 
 @pytest.mark.parametrize("compiled", [True, False])

@@ -24,17 +24,22 @@ __all__ = ["prepare_dense", "prepare_dense_reference", "pivot_ratio", "scaled_no
            "after_trial", "dispatchers"]
 
 _COMPILED = {}
+# Reassociation lets LLVM vectorise the sums and maxima over the (possibly cache-sized)
+# Jacobian: they then differ from the reference by rounding only.  No other fast-math
+# flag is set, so NaN and inf keep their meaning (the finiteness checks rely on it).
+_FASTMATH = {"_prepare_dense_py": {"reassoc"}}
 
 
-def _prepare_dense_py(A, D, R, F, u, scales, J, w, rscale, assemble):
+def _prepare_dense_py(A, DT, R, F, u, scales, J, w, rscale, assemble):
     """Body of :func:`prepare_dense` (compiled by numba; plain Python is the fallback).
 
     Parameters
     ----------
     A : (nf, nf, na, n) float
         Pointwise coefficients ``dF_j[p] / d(D^k U_i)[p]``.
-    D : (na, n, n) float
-        Dense derivative operators (``D[0]`` is the identity).
+    DT : (na, n, n) float
+        Dense derivative operators, transposed: ``DT[k, q, p] = (D^k)[p, q]``; ``D^0`` is
+        the identity and is not read.
     R : (na, n) float
         Absolute row sums of the operators.
     F : (nf * n,) float
@@ -91,33 +96,34 @@ def _prepare_dense_py(A, D, R, F, u, scales, J, w, rscale, assemble):
                 rnorm = r
     if not assemble:
         return True, rnorm, np.nan
-    for j in range(nf):
-        for i in range(nf):
-            for q in range(n):
-                for p in range(n):
-                    J[j * n + p, i * n + q] = A[j, i, 0, p] * D[0, p, q]
-            for k in range(1, na):
-                for q in range(n):
-                    for p in range(n):
-                        J[j * n + p, i * n + q] += A[j, i, k, p] * D[k, p, q]
+    # column by column of the Fortran-ordered J: contiguous inner loops over one block
+    # column (in cache while it is built and its row maxima gathered); one more pass over
+    # J scales the rows
     size = nf * n
     for r in range(size):
         rscale[r] = 0.0
-    for q in range(size):
-        for r in range(size):
-            a = abs(J[r, q])
-            if a > rscale[r]:
-                rscale[r] = a
+    for j in range(nf):
+        for i in range(nf):
+            for q in range(n):
+                col = i * n + q
+                for p in range(n):
+                    J[j * n + p, col] = 0.0
+                J[j * n + q, col] = A[j, i, 0, q]
+                for k in range(1, na):
+                    for p in range(n):
+                        J[j * n + p, col] += A[j, i, k, p] * DT[k, q, p]
+                for p in range(n):
+                    rscale[j * n + p] = max(rscale[j * n + p], abs(J[j * n + p, col]))
     for r in range(size):
         rscale[r] = 1.0 / rscale[r] if rscale[r] > 0 else 1.0
     anorm = 0.0
     for q in range(size):
         c = 0.0
         for r in range(size):
-            J[r, q] *= rscale[r]
-            c += abs(J[r, q])
-        if c > anorm:
-            anorm = c
+            v = J[r, q] * rscale[r]
+            J[r, q] = v
+            c += abs(v)
+        anorm = max(anorm, c)
     return True, rnorm, anorm
 
 
@@ -344,7 +350,7 @@ def _compiled(fun):
             scope = dict(fun.__globals__)
             scope.update({g: _compiled(h) for g, h in helpers.items()})
             fun = types.FunctionType(fun.__code__, scope, fun.__name__, fun.__defaults__)
-        _COMPILED[name] = numba.njit(cache=True, nogil=True)(fun)
+        _COMPILED[name] = numba.njit(cache=True, nogil=True, fastmath=_FASTMATH.get(name, False))(fun)
     return _COMPILED[name]
 
 
@@ -389,9 +395,9 @@ def after_trial(rows, inv_h, Ft, At, lu, piv, rscale, dx, lam, w, trial, scales,
                                                     w, trial, scales, dxbar)
 
 
-def prepare_dense(A, D, R, F, u, scales, J, w, rscale, assemble=True):
+def prepare_dense(A, DT, R, F, u, scales, J, w, rscale, assemble=True):
     """Compiled :func:`_prepare_dense_py` (see there for the arguments)."""
-    return _compiled(_prepare_dense_py)(A, D, R, F, u, scales, J, w, rscale, assemble)
+    return _compiled(_prepare_dense_py)(A, DT, R, F, u, scales, J, w, rscale, assemble)
 
 
 def pivot_ratio(lu):

@@ -343,7 +343,8 @@ def _cached(problem):
             "nf": nf, "na": na, "n": n, "batch": (nslot,), "buf": buf, "rowbuf": rowbuf,
             "dstack": plan["dstack"], "coords": plan["coords"], "faces": faces,
             "f": Namespace({nm: buf[i, k] for nm, i, k in names}, "field or derivative"),
-            "dense": np.ascontiguousarray(problem._dense_ops()), "rowsums": problem.row_sums(),
+            "dense": np.ascontiguousarray(problem._dense_ops().transpose(0, 2, 1)),  # kernel layout
+            "rowsums": problem.row_sums(),
             "eq_what": f"equations {problem.name!r}", "target": (nslot, n),
             "coeffs": np.ascontiguousarray(problem.grid.axes[0].coeffs(np.eye(n), axis=0)),
         }
