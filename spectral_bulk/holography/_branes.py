@@ -33,7 +33,7 @@ the ``u^{3p}`` Taylor coefficient of the metric, which the Chebyshev series does
 and the radial anisotropy integral for ``p_x - p_y`` (:func:`stress_from_identities`,
 :func:`anisotropy_integral`; ``stress_from_identities = 1``), which on integer falloffs agrees
 with the counterterm route to ~1e-12.  The identities used are then no certificate (NaN); the
-free energy from the renormalised Euclidean action (:func:`_rational_action_free_energy`, which
+free energy from the renormalised Euclidean action (:func:`_action_free_energy`, which
 sees the energy only through ``f_3``) is, and the first law along families and
 ``p_x = -f + k df/dk`` check the result too (tests).
 """
@@ -215,127 +215,67 @@ def _gauss_points(m):
     return 0.5 * (x + 1), 0.5 * w
 
 
-def _action_free_energy(bg, sol, st):
-    """Free energy density from the renormalised Euclidean action (internal units).
+def _action_free_energy(bg, sol, lam_beta, energy_std, shift=0.0):
+    """Free energy density (internal units) from the renormalised Euclidean action.
 
-    Bulk integral in the areal coordinate zeta = z (B C)^{-1/4} of the regular
-    integrand (docs/physics/black_branes.md, section d), by Gauss-Legendre on the
-    Chebyshev interpolant; the boundary limit from the areal-gauge relation
-    lim (B - B_sing) = f_3 with energy = -2 f_3 + lambda rho_2.
-    """
-    if bg.d != 3 or any(abs(sc.m2 + 2) > 1e-9 for sc in bg.model.uv):
-        return np.nan
-    grid = sol.grid
-    basis = grid.axes[0]
-    D1 = basis.diff_matrices(1)[0]
-    zq, wq = _gauss_points(max(48, 2 * basis.n))
-    P = basis.interp_matrix(zq)
-
-    def at(name):
-        v = sol.fields[name]
-        return P @ v, P @ (D1 @ v)
-
-    A, A1 = at("A")
-    S, S1 = at("S" if bg.gauge == "deturck" else "A")
-    B, B1 = at("B")
-    C, C1 = at("C")
-    z = zq
-    # areal coordinate and its z-derivative
-    q = (B * C) ** -0.25
-    q1 = -0.25 * q * (B1 / B + C1 / C)
-    zeta = z * q
-    zeta1 = q + z * q1
-    # e^{-chi} = A S / (B C) (dz/dzeta)^2
-    e_mchi = A * S / (B * C) / zeta1**2
-    # chi' in z: d/dz of -log(e^{-chi}); needs zeta'' -> use the spectral derivative of zeta'
-    zeta_nodes = grid.coords["z"] * (sol.fields["B"] * sol.fields["C"]) ** -0.25
-    dzeta_nodes = D1 @ zeta_nodes
-    d2zeta = P @ (D1 @ dzeta_nodes)
-    chi_z = -(A1 / A + S1 / S - B1 / B - C1 / C - 2 * d2zeta / zeta1)
-    w_z = 0.5 * (B1 / B - C1 / C)
-    integrand = np.zeros_like(z)
-    m = bg.model
-    if bg.scalar_fields:
-        psi_nodes = sol.fields[bg.scalar_fields[0]]
-        psi, psi1 = P @ psi_nodes, P @ (D1 @ psi_nodes)
-        rho = z * psi
-        h1 = psi1 / q - psi * q1 / q**2  # d(rho/zeta)/dz with rho/zeta = psi/q
-        U_over_rho4 = _quartic_remainder(m.V, rho)
-        integrand += (0.5 * (h1 / zeta1) ** 2 + chi_z / zeta1 * rho**2 / (4 * zeta**3)
-                      + U_over_rho4 * (rho / zeta) ** 4)
-    integrand += (w_z / zeta1) ** 2 / (2 * zeta**2)
-    integral = np.sum(wq * np.sqrt(e_mchi) * integrand * zeta1)
-    if bg.charged:
-        at_nodes = sol.fields["at"]
-        at1 = P @ (D1 @ at_nodes)
-        # the Maxwell part of the on-shell Lagrangian: -sqrt(-g) Z F^2/4 = +(Z/2) sqrt(BC/(AS)) at_z^2
-        Zv = np.real(m.Z(z * (P @ sol.fields[bg.scalar_fields[0]]))) if bg.scalar_fields else 1.0
-        gauge = 0.5 * Zv * np.sqrt(B * C / (A * S)) * at1**2
-        integral_gauge = np.sum(wq * gauge)
-    else:
-        integral_gauge = 0.0
-    # horizon term B_sing(zeta_h) = e^{-chi_h/2} (2 + rho_h^2/2) / zeta_h^3
-    Bh, Ch = sol.fields["B"][-1], sol.fields["C"][-1]
-    Ah, Sh = sol.fields["A"][-1], sol.fields["S" if bg.gauge == "deturck" else "A"][-1]
-    zeta_h = (Bh * Ch) ** -0.25
-    dzeta_h = dzeta_nodes[-1]
-    e_mchi_h = Ah * Sh / (Bh * Ch) / dzeta_h**2
-    rho_h = sol.fields[bg.scalar_fields[0]][-1] if bg.scalar_fields else 0.0
-    b_sing_h = math.sqrt(e_mchi_h) * (2 + rho_h**2 / 2) / zeta_h**3
-    lam_rho2 = sum(l * r for l, r in zip(st["lams"], st["rho2s"]))
-    f3 = (lam_rho2 - (st["energy"] - st["shift"])) / 2
-    s_L = b_sing_h + integral + f3 + integral_gauge
-    return -s_L + st["shift"]
-
-
-def _rational_action_free_energy(bg, sol, energy_std):
-    """Free energy (internal units) of a rational falloff from the renormalised Euclidean action.
-
-    Section i.4 of docs/physics/black_branes.md in the areal coordinate
-    ``zeta = z (B C)^{-1/4} = u^p q``, written in ``u`` so that every term is regular::
+    Sections d and i.4 of docs/physics/black_branes.md, in the areal coordinate
+    ``zeta = z (B C)^{-1/4}`` written in the grid coordinate ``x`` (``z = x^p``;
+    ``p = 1`` for integer falloffs) so that every term is regular::
 
         s_L = B_sing(zeta_h) + int e^{-chi/2} [ (1/2) zeta^{2a-2} h_zeta^2 + w_zeta^2/(2 zeta^2)
-              + a chi_zeta rho^2/(4 zeta^3) + U/zeta^4 ] dzeta + (f_3 + a (1 - a) lambda beta)
+              + a chi_zeta rho^2/(4 zeta^3) + U/zeta^4 ] dzeta
+              + (Z/2) int sqrt(B C/(A S)) a_t,z^2 dz + f_3 + a (1 - a) lambda beta
 
-    with ``h = rho/zeta^a = psi q^{-a}``, ``w = log(B/C)/2``, ``e^{-chi} = A^2/(B C)/(q + u q_u/p)^2``,
-    ``B_sing = e^{-chi/2} (2 + a rho^2/2)/zeta^3``, ``f_3 = (a lambda beta - energy)/2`` (energy in
-    the standard scheme) and ``F = -s_L`` (+ ``c lambda beta`` in alternative quantisation).
-    ``energy_std`` enters only through ``f_3``, so comparing ``F`` with ``energy - T s`` checks
-    the energy against the bulk integral.
+    with ``Delta_- = a`` (1 for m^2 = -2), ``rho = x^(a p) psi``, ``h = rho/zeta^a = psi q^{-a}``,
+    ``q = (B C)^{-1/4}``, ``w = log(B/C)/2``, ``e^{-chi} = A S/(B C)/(d zeta/dz)^2``,
+    ``B_sing = e^{-chi/2} (2 + a rho^2/2)/zeta^3``, ``U = V + 6 + rho^2`` and
+    ``f_3 = (a lambda beta - energy)/2`` with the energy in the standard scheme
+    (``energy_std``); ``F = -s_L + shift`` (``shift``: the Legendre term of alternative
+    quantisation).  The bulk integral is Gauss-Legendre on the Chebyshev interpolant;
+    ``energy_std`` enters only through ``f_3``, so comparing ``F`` with ``energy - T s``
+    checks the energy against the bulk integral.
     """
-    a, p, n = bg.alpha, bg.power, bg.n_vev
-    c = 3 - 2 * a
+    a, p = getattr(bg, "alpha", 1.0), getattr(bg, "power", 1)
+    rho_power = getattr(bg, "rho_power", 1)
     basis = sol.grid.axes[0]
     D1 = basis.diff_matrices(1)[0]
-    uq, wq = _gauss_points(max(64, 2 * basis.n))
-    P = basis.interp_matrix(uq)
-    A, B, C, psi = (sol.fields[name] for name in ("A", "B", "C", "psi"))
-    u_nodes = sol.grid.coords["u"]
+    xq, wq = _gauss_points(max(64, 2 * basis.n))
+    P = basis.interp_matrix(xq)
+    fields = sol.fields
+    A, B, C = fields["A"], fields["B"], fields["C"]
+    S = fields["S"] if bg.gauge == "deturck" else A
+    x_nodes = sol.grid.coords[sol.grid.names[0]]
     q_nodes = (B * C) ** -0.25
-    qu_nodes = D1 @ q_nodes
-    # e^{-chi} at the nodes, then log-derivative spectrally
-    emchi_nodes = A**2 / (B * C) / (q_nodes + u_nodes * qu_nodes / p) ** 2
-    chi_u = -(P @ (D1 @ np.log(emchi_nodes)))
-    emchi = P @ emchi_nodes
-    q, qu = P @ q_nodes, P @ qu_nodes
-    zeta = uq**p * q
-    zeta_u = p * uq ** (p - 1) * q + uq**p * qu
-    h_nodes = psi * q_nodes ** (-a)
-    h_u = P @ (D1 @ h_nodes)
-    w_u = 0.5 * (P @ (D1 @ np.log(B / C)))
-    rho = uq**bg.rho_power * (P @ psi)
-    U_over_rho4 = _quartic_remainder(bg.model.V, rho)
-    integrand = (0.5 * zeta ** (2 * a - 2) * h_u**2 / zeta_u + w_u**2 / (2 * zeta**2 * zeta_u)
-                 + a * chi_u * rho**2 / (4 * zeta**3) + U_over_rho4 * (rho / zeta) ** 4 * zeta_u)
-    integral = float(np.sum(wq * np.sqrt(emchi) * integrand))
-    rho_h = psi[-1]
-    zeta_h = q_nodes[-1]
-    b_sing_h = math.sqrt(emchi_nodes[-1]) * (2 + a * rho_h**2 / 2) / zeta_h**3
-    coef = taylor_at_boundary(sol, "psi", order=n)
-    lam, beta = coef[0], coef[n]
-    f3 = (a * lam * beta - energy_std) / 2
-    s_L = b_sing_h + integral + f3 + a * (1 - a) * lam * beta
-    shift = c * lam * beta if bg.quantization == "alternative" else 0.0
+    qx_nodes = D1 @ q_nodes
+    # e^{-chi} at the nodes (d zeta/dz = q + x q_x / p), then its log-derivative spectrally
+    emchi_nodes = A * S / (B * C) / (q_nodes + x_nodes * qx_nodes / p) ** 2
+    chi_x = -(P @ (D1 @ np.log(emchi_nodes)))
+    q, qx = P @ q_nodes, P @ qx_nodes
+    zeta = xq**p * q
+    zeta_x = p * xq ** (p - 1) * q + xq**p * qx
+    w_x = 0.5 * (P @ (D1 @ np.log(B / C)))
+    integrand = w_x**2 / (2 * zeta**2 * zeta_x)
+    rho_h = 0.0
+    if bg.scalar_fields:
+        psi = fields[bg.scalar_fields[0]]
+        h_x = P @ (D1 @ (psi * q_nodes ** (-a)))
+        rho = xq**rho_power * (P @ psi)
+        U_over_rho4 = _quartic_remainder(bg.model.V, rho)
+        integrand = integrand + (0.5 * zeta ** (2 * a - 2) * h_x**2 / zeta_x
+                                 + a * chi_x * rho**2 / (4 * zeta**3)
+                                 + U_over_rho4 * (rho / zeta) ** 4 * zeta_x)
+        rho_h = psi[-1]
+    integral = float(np.sum(wq * np.sqrt(P @ emchi_nodes) * integrand))
+    if bg.charged:
+        # the Maxwell part of the on-shell Lagrangian: -sqrt(-g) Z F^2/4 = +(Z/2) sqrt(BC/(AS)) a_t,z^2
+        at_x = P @ (D1 @ fields["at"])
+        Zv = np.real(bg.model.Z(xq**rho_power * (P @ fields[bg.scalar_fields[0]]))) if bg.scalar_fields else 1.0
+        Ai, Bi, Ci, Si = (P @ v for v in (A, B, C, S))
+        integral += float(np.sum(wq * 0.5 * Zv * np.sqrt(Bi * Ci / (Ai * Si)) * at_x**2
+                                 / (p * xq ** (p - 1))))
+    b_sing_h = math.sqrt(emchi_nodes[-1]) * (2 + a * rho_h**2 / 2) / q_nodes[-1] ** 3  # zeta_h = q_h
+    f3 = (a * lam_beta - energy_std) / 2
+    s_L = b_sing_h + integral + f3 + a * (1 - a) * lam_beta
     return -s_L + shift
 
 
@@ -550,7 +490,9 @@ def _rational_observables(bg, sol):
     shift = 0.0
     if bg.quantization == "alternative":  # <T^i_j>_alt = <T^i_j> - c lambda beta delta^i_j
         shift = -obs["source"] * obs["vev"]  # c lambda beta / T^3 with J = c beta, <O> = -lambda
-    f_action = _rational_action_free_energy(bg, sol, (energy - shift) * T**3) / T**3
+    coef = taylor_at_boundary(sol, bg.scalar_fields[0], order=bg.n_vev)
+    f_action = _action_free_energy(bg, sol, coef[0] * coef[bg.n_vev], (energy - shift) * T**3,
+                                   shift * T**3) / T**3
     scale = max(abs(energy), obs["s"], abs(px), abs(py), abs(f))
     obs.update({"energy": energy, "p_x": px, "p_y": py, "f": f, "f_action": f_action,
                 "action": abs(f_action - f) / scale, "renormalised": 1, "stress_from_identities": 1})
@@ -600,7 +542,10 @@ def brane_observables(bg, sol):
     s = 4 * math.pi * math.sqrt(Bh * Ch)
     T_sol = T * math.sqrt(Ah / Sh)
     f_thermo = st["energy"] - T * s - st["mu"] * st["charge"]
-    f_action = _action_free_energy(bg, sol, st)
+    f_action = np.nan
+    if bg.d == 3 and all(abs(sc.m2 + 2) <= 1e-9 for sc in bg.model.uv):
+        lam_rho2 = sum(lam * r for lam, r in zip(st["lams"], st["rho2s"]))
+        f_action = _action_free_energy(bg, sol, lam_rho2, st["energy"] - st["shift"], st["shift"])
     deturck, constraint = _gauge_checks(bg, sol)
     scale = max(abs(st["energy"]), T * s, abs(st["p_x"]), abs(st["p_y"]), abs(f_thermo))
     obs = {
