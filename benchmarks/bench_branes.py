@@ -52,7 +52,15 @@ a. One solve at ``(lam/T, k/T) = (1, 1)`` to ``1e-10`` relative in ``s/T^2``.
      have), and a fixed conservative configuration as well.
    * Warm start (secondary): both from the solution at ``(lam/T, k/T) = (0.9, 1)``.
 
-   Ratio reported: median solve_bvp time / median spectral_bulk time (issue target >= 20).
+   * The method on identical equations: ``spectral_bulk.solve`` on the very system solve_bvp
+     gets (``ArealBVP.spectral_problem``: the same right-hand side, the rows of ``Omega`` and
+     ``q`` multiplied by ``f`` so that at the horizon grid point they are the regularity
+     conditions), from the same trivial guess, ``tol = 1e-10``, smallest ``n`` within
+     ``1e-10`` with and without a converged certificate.  This separates the cost of the
+     method from that of the generic Einstein evaluator the package's branes use.
+
+   Ratio reported: median solve_bvp time / median spectral_bulk time (issue target >= 20),
+   for the package's brane solve (headline) and for the engine on identical equations.
 
 b. A family of 100 points in ``lam/T`` at ``k/T = 1``: ``QLatticeBrane(model)`` (defaults
    ``n = 24``, ``tol = 1e-10``), ``.follow("lam", start={"lam": 0.05, "k": 1.0}, step=0.05,
@@ -83,6 +91,7 @@ import time  # noqa: E402
 import numpy as np  # noqa: E402
 from scipy.integrate import solve_bvp  # noqa: E402
 
+from spectral_bulk import Chebyshev, Problem, solve  # noqa: E402
 from spectral_bulk.backgrounds import QLatticeBrane  # noqa: E402
 from spectral_bulk.backgrounds._brane import Brane  # noqa: E402
 from spectral_bulk.models import builtin  # noqa: E402
@@ -119,9 +128,13 @@ class ArealBVP:
     def __init__(self, lam_b, kb, delta):
         self.lam_b, self.kb, self.delta = float(lam_b), float(kb), float(delta)
 
-    def rhs(self, z, y, p=None):
-        # docs/physics/black_branes.md section 0 (regular variables), with U = 0,
-        # Phi/z^2 = phi^2, Phi'/z = 2 phi; same algebra as brane_reference._rhs
+    def terms(self, z, y):
+        """``(f, regular, singular)``: ``y' = regular + singular / f`` componentwise.
+
+        docs/physics/black_branes.md section 0 (regular variables), with ``U = 0``,
+        ``Phi/z^2 = phi^2``, ``Phi'/z = 2 phi``; same algebra as ``brane_reference._rhs``.
+        Only ``Omega`` and ``q`` have a singular part (``None`` for the others).
+        """
         H, chi, w, Om, phi, q = y
         kb2 = self.kb * self.kb
         rp = phi + z * q
@@ -135,10 +148,53 @@ class ArealBVP:
         Ftp = H + 0.5 * phi * q + z * Hp
         fp = 2.0 * z * Ft + z2 * Ftp
         fp_z = 2.0 * Ft + z * Ftp
-        wp = z2 * Om
-        Omp = (-0.5 * kb2 * ew * phi * phi - fp * Om) / f + 0.5 * chip * Om
-        qp = (2.0 * phi * Ft + kb2 * ew * phi - fp_z * rp) / f + 0.5 * chi_z * rp
-        return np.array([Hp, chip, wp, Omp, q, qp])
+        regular = [Hp, chip, z2 * Om, 0.5 * chip * Om, q, 0.5 * chi_z * rp]
+        singular = [None, None, None, -0.5 * kb2 * ew * phi * phi - fp * Om,
+                    None, 2.0 * phi * Ft + kb2 * ew * phi - fp_z * rp]
+        return f, regular, singular
+
+    def rhs(self, z, y, p=None):
+        f, regular, singular = self.terms(z, y)
+        return np.array([r if sg is None else r + sg / f for r, sg in zip(regular, singular)])
+
+    def spectral_problem(self, n):
+        """The same equations as a :class:`spectral_bulk.Problem` on ``n`` Chebyshev points.
+
+        The method comparison on identical equations: the rows of ``Omega`` and ``q`` are
+        multiplied by ``f``, so at the horizon (``f(1) = 0``) they are the regularity
+        conditions and need no boundary condition; ``phi(0) = lambda_b``, ``f(1) = 0``
+        (``H(1) = -1 - phi(1)^2/4``) and ``chi(1) = w(1) = 0`` as in :meth:`bc`, with ``rho_h =
+        phi(1)`` a field value instead of a parameter (no ``delta``: the horizon is a grid
+        point).
+        """
+        names = ["H", "chi", "w", "Om", "phi", "q"]
+
+        def equations(c, fs, p):
+            y = [fs[nm] for nm in names]
+            f, regular, singular = self.terms(c.z, y)
+            return [fs[nm + "_z"] - r if sg is None else f * (fs[nm + "_z"] - r) - sg
+                    for nm, r, sg in zip(names, regular, singular)]
+
+        def boundary(c, fs, p):
+            return [None, None, None, None, fs.phi - self.lam_b, None]
+
+        def horizon(c, fs, p):
+            return [fs.H + 1.0 + 0.25 * fs.phi * fs.phi, fs.chi, fs.w, None, None, None]
+
+        return Problem(Chebyshev(n, (0.0, 1.0), "z"), names, equations,
+                       {"left": boundary, "right": horizon}, {}, name="areal_brane")
+
+    def spectral_guess(self, z):
+        """The trivial guess of :meth:`trivial_guess` on the collocation points."""
+        y, _ = self.trivial_guess(z)
+        return dict(zip(["H", "chi", "w", "Om", "phi", "q"], y))
+
+    def spectral_entropy(self, res):
+        """``s/T^2`` of a :func:`spectral_bulk.solve` result (as :meth:`observables`)."""
+        rh, chi0 = float(res.fields["phi"][-1]), float(res.fields["chi"][0])
+        fp1 = 0.25 * self.kb * self.kb * rh * rh - 3.0 - 0.5 * rh * rh
+        T = abs(fp1) * math.exp(0.5 * chi0) / (4.0 * math.pi)
+        return 4.0 * math.pi / T**2
 
     def jac(self, z, y, p=None):
         """Complex-step Jacobian (exact to rounding; the right-hand side is analytic)."""
@@ -301,6 +357,23 @@ def part_a(quick, rounds):
     log("  spectral scan (default tol 1e-10, n_max = n): " + ", ".join(
         f"n={r['n']}:{r['rel_err_s']:.0e}{'' if r['converged'] else '(uncert.)'}" for r in scan))
 
+    # ---- the engine on the very equations solve_bvp gets (areal gauge, regular variables)
+    areal = ArealBVP(lam_b, kb, 0.0)
+    ascan = []
+    areal_problems = {}
+    for n in range(8, 33, 2):
+        areal_problems[n] = pr = areal.spectral_problem(n)
+        res = quiet(solve, pr, areal.spectral_guess, tol=1e-10)
+        ascan.append({"n": n, "status": int(res.status), "converged": bool(res.converged),
+                      "iterations": int(res.iterations), "tail": float(max(res.tail.values())),
+                      "rel_err_s": abs(areal.spectral_entropy(res) / s_true - 1)})
+    a_any = [r["n"] for r in ascan if r["rel_err_s"] <= TARGET_RTOL]
+    a_cert = [r["n"] for r in ascan if r["rel_err_s"] <= TARGET_RTOL and r["converged"]]
+    na_any, na_cert = (a_any[0] if a_any else None), (a_cert[0] if a_cert else None)
+    out["areal_spectral_scan"] = ascan
+    log("  engine on the areal equations (tol 1e-10): " + ", ".join(
+        f"n={r['n']}:{r['rel_err_s']:.0e}{'' if r['converged'] else '(uncert.)'}" for r in ascan))
+
     # ---- solve_bvp: tuning scan
     deltas = (1e-4, 1e-5, 1e-6) if quick else (1e-3, 1e-4, 1e-5, 1e-6)
     tols = (1e-3, 1e-5, 1e-7) if quick else (1e-3, 1e-4, 1e-5, 1e-6, 1e-7, 1e-8)
@@ -366,6 +439,12 @@ def part_a(quick, rounds):
 
     if n_cert:
         ver["spectral_certified"] = verify_spec(n_cert)
+    for key, n in (("areal_engine_certified", na_cert), ("areal_engine_smallest", na_any)):
+        if n:
+            res = quiet(solve, areal.spectral_problem(n), areal.spectral_guess, tol=1e-10)
+            err = abs(areal.spectral_entropy(res) / s_true - 1)
+            ver[key] = {"n": n, "status": int(res.status), "converged": bool(res.converged),
+                        "rel_err_s": err, "passed": bool(err <= TARGET_RTOL)}
     if n_any and n_any != n_cert:
         ver["spectral_smallest"] = verify_spec(n_any)
 
@@ -437,6 +516,12 @@ def part_a(quick, rounds):
         funcs["spectral, new object per call"] = spec_fresh
     if n_any and n_any != n_cert:
         funcs["spectral (smallest n, uncertified)"] = cold_solve("spec_any", n=n_any, n_max=n_any)
+    for label, n in (("certified n", na_cert), ("smallest n, uncertified", na_any)):
+        if n and not (label != "certified n" and n == na_cert):
+            def areal_run(pr=areal_problems[n]):
+                res = quiet(solve, pr, areal.spectral_guess, tol=1e-10)
+                return areal.spectral_entropy(res)
+            funcs[f"engine on the areal equations ({label})"] = areal_run
     if tuned:
         pt = ArealBVP(lam_b, kb, tuned["delta"])
         funcs["solve_bvp tuned"] = lambda: quiet(pt.solve, tuned["tol"], tuned["m0"], tuned["mesh"], tuned["jac"])
@@ -473,6 +558,13 @@ def part_a(quick, rounds):
     if "spectral (smallest n, uncertified)" in samples and "solve_bvp tuned" in samples:
         ratios["solve_bvp tuned / spectral (smallest n, uncertified)"] = ratio(
             samples["solve_bvp tuned"], samples["spectral (smallest n, uncertified)"])
+    for label in ("certified n", "smallest n, uncertified"):
+        name = f"engine on the areal equations ({label})"
+        if name in samples and "solve_bvp tuned" in samples:
+            ratios[f"solve_bvp tuned / {name}"] = ratio(samples["solve_bvp tuned"], samples[name])
+        if name in samples and "spectral (certified n)" in samples:
+            ratios[f"spectral (certified n) / {name}"] = ratio(samples["spectral (certified n)"],
+                                                               samples[name])
     if "solve_bvp warm (from 0.9)" in samples:
         ratios["solve_bvp warm / spectral warm"] = ratio(samples["solve_bvp warm (from 0.9)"],
                                                          samples["spectral warm (from 0.9)"])
@@ -482,6 +574,9 @@ def part_a(quick, rounds):
     out["headline_ratio"] = head
     out["target_met"] = bool(head >= TARGET_RATIO)
     out["n_certified"], out["n_smallest"] = n_cert, n_any
+    out["areal_engine_n_certified"], out["areal_engine_n_smallest"] = na_cert, na_any
+    same = ratios.get("solve_bvp tuned / engine on the areal equations (certified n)", {})
+    out["same_equations_ratio"] = same.get("ratio", float("nan"))
     out["tuned_config"] = {k: tuned[k] for k in ("delta", "tol", "m0", "mesh", "jac")} if tuned else None
     out["warm_bvp_tol"] = warm_tol
     out["conservative_config"] = conservative
@@ -640,7 +735,9 @@ def report(a, b):
             "spectral (smallest n, uncertified)": ver.get("spectral_smallest"),
             "solve_bvp tuned": ver.get("bvp_tuned"), "solve_bvp conservative": ver.get("bvp_conservative"),
             "spectral warm (from 0.9)": ver["warm"].get("spectral"),
-            "solve_bvp warm (from 0.9)": ver["warm"].get("bvp")}
+            "solve_bvp warm (from 0.9)": ver["warm"].get("bvp"),
+            "engine on the areal equations (certified n)": ver.get("areal_engine_certified"),
+            "engine on the areal equations (smallest n, uncertified)": ver.get("areal_engine_smallest")}
     for name, s in a["timing"].items():
         v = errs.get(name) or {}
         log(f"{name:40s} {ms(s['median']):>10s} [{ms(s['q25'])},{ms(s['q75'])}] "
@@ -650,6 +747,8 @@ def report(a, b):
         log(f"ratio {name:58s} {_common.fmt_ratio(r, 7, 'IQR of per-round ratios ')}")
     log(f"issue target solve_bvp/spectral >= {TARGET_RATIO:g}: {'MET' if a['target_met'] else 'NOT MET'} "
         f"(headline ratio {a['headline_ratio']:.3f}, medians over {a['rounds']} interleaved rounds)")
+    log(f"  on identical equations (the engine on solve_bvp's areal-gauge system, n = "
+        f"{a.get('areal_engine_n_certified')}): solve_bvp/engine {a.get('same_equations_ratio', float('nan')):.1f}")
     for k in ("bvp_tuned", "bvp_conservative"):
         if k in ver:
             v = ver[k]

@@ -232,7 +232,8 @@ class DenseWorkspace(GenericWorkspace):
                 rows[i] = e
         for fun, cb, fns, sl, what, target in c["faces"]:
             bc = fun(cb, fns, self.p)
-            if not _well_formed(bc, nf, target):
+            if not (type(bc) is list and len(bc) == nf
+                    and all(b is None or getattr(b, "shape", None) == target for b in bc)):
                 bc = pr._normalise(bc, what, target[1], c["batch"])
             for i, b in enumerate(bc):
                 if b is not None:
@@ -349,16 +350,6 @@ def _cached(problem):
             "coeffs": np.ascontiguousarray(problem.grid.axes[0].coeffs(np.eye(n), axis=0)),
         }
     return plan["workspace"]
-
-
-def _well_formed(out, nf, target):
-    """Whether callback output needs no normalisation: a list of ``nf`` arrays of ``target`` shape."""
-    if type(out) is not list or len(out) != nf:
-        return False
-    for r in out:
-        if getattr(r, "shape", None) != target:
-            return False
-    return True
 
 
 def workspace(problem, params, opts):
