@@ -355,3 +355,47 @@ def test_tiny_tolerance_is_raised_with_warning():
     with pytest.warns(AccuracyWarning):
         res = sb.solve(bratu_problem(20, 1.0), 0.0, tol=1e-18)
     assert res.converged
+
+
+# ------------------------------------- Jacobian and parameter derivative in one pass
+def _separate(problem, u, name, params=None):
+    F, A = problem.linearize(u, params)
+    return F, A, problem.param_derivative(u, name, params)
+
+
+def test_linearize_with_param_batches_the_parameter_slot():
+    # dF/dlam of u'' + lam e^u is e^u on interior rows and 0 on the Dirichlet rows
+    # (differentiating the Bratu operator by hand; Gelfand-Bratu problem, common practice)
+    problem = bratu_problem(16, 2.0)
+    x = problem.grid.coords["x"]
+    u = 0.3 * np.sin(np.pi * x)
+    for _ in range(2):  # the first call checks the batched route against the separate one
+        F, A, Fp = problem.linearize_with_param(u, "lam")
+    assert problem._joint["lam"] is True
+    Fs, As, Fps = _separate(problem, u, "lam")
+    np.testing.assert_allclose(F, Fs, rtol=0, atol=1e-13 * np.abs(Fs).max())
+    np.testing.assert_allclose(A, As, rtol=0, atol=1e-13 * np.abs(As).max())
+    want = np.exp(u)
+    want[[0, -1]] = 0.0
+    np.testing.assert_allclose(Fp, want, rtol=1e-14, atol=1e-15)
+
+
+@pytest.mark.parametrize("how", ["raises", "wrong"])
+def test_linearize_with_param_falls_back_for_scalar_only_callbacks(how):
+    import cmath
+
+    if how == "raises":  # cmath.exp takes a (complex) scalar parameter, not an array
+        def eqs(c, f, p):
+            return f.u_xx + cmath.exp(p.s) * np.exp(f.u)
+    else:  # broadcasts without raising, but wrongly: np.sum of a batched parameter
+        def eqs(c, f, p):
+            return f.u_xx + np.sum(p.s) * np.exp(f.u)
+    problem = sb.Problem(sb.Chebyshev(14, (0.0, 1.0)), ["u"], eqs, DIRICHLET, {"s": 0.5})
+    u = 0.2 * np.sin(np.pi * problem.grid.coords["x"])
+    for _ in range(2):
+        got = problem.linearize_with_param(u, "s")
+    assert problem._joint["s"] is False
+    for a, b in zip(got, _separate(problem, u, "s")):
+        np.testing.assert_array_equal(a, b)
+    with pytest.raises(ProblemDefinitionError, match="unknown parameter"):
+        problem.linearize_with_param(u, "t")

@@ -325,8 +325,7 @@ class _Follower:
     def bordered(self, prob, u, lam, t_u, t_lam, check=True, m=None):
         """Linearise at (u, lam) and factorise B with border (t_u, t_lam)."""
         pv = self.pv(lam)
-        F, A = prob.linearize(u, pv)
-        Fl = prob.param_derivative(u, self.param, pv)
+        F, A, Fl = prob.linearize_with_param(u, self.param, pv)
         self.branch.njev += 1
         m = self.metric(prob, u) if m is None else m
         solver = make_solver(prob, A, self.o.linear_solver, border=(Fl, m * t_u, t_lam),

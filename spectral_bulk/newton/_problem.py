@@ -169,6 +169,7 @@ class Problem:
         self.linearization = linearization
         self.alphas = self.grid.multi_indices(self.max_order)
         self._batched = True
+        self._joint = {}  # parameter -> whether linearize_with_param may batch it (checked once)
         self._ops = None
 
     # --------------------------------------------------------------- utilities
@@ -193,6 +194,7 @@ class Problem:
             new.boundary[new.grid.resolve_face(key)] = (key, fun)
         new.alphas = new.grid.multi_indices(new.max_order)
         new._ops = None
+        new._joint = dict(self._joint)
         return new
 
     def merged_params(self, params=None):
@@ -447,6 +449,57 @@ class Problem:
             rows = self._evaluate(dv, p2, complex_step=True)
         return (rows.imag / _H).ravel()
 
+    def linearize_with_param(self, state, name, params=None):
+        """:meth:`linearize` and :meth:`param_derivative` for ``name`` in one evaluation.
+
+        The parameter's complex step rides in one more slot of the batched complex-step
+        evaluation: the callbacks then see ``p.<name>`` as an array with the batch axis
+        (shape ``(nslot + 2, 1)``), which numpy arithmetic broadcasts.  Callbacks that
+        need a scalar there (``math`` functions, ``if`` on the value) raise, and some
+        could broadcast it wrongly without raising; so the first call for each parameter
+        also evaluates the two separately and uses the batched route from then on only if
+        both agree to rounding.  Otherwise (and for finite-difference or unbatched
+        problems) it is the two separate evaluations.
+
+        Returns
+        -------
+        F, A, Fp : ndarray
+            As :meth:`linearize` and :meth:`param_derivative`.
+        """
+        params = self.merged_params(params)
+        if name not in params:
+            raise ProblemDefinitionError(f"unknown parameter {name!r}; have {sorted(params)}")
+        mode = self._joint.get(name)
+        if mode is not False and self.linearization == "complex-step" and self._batched:
+            try:
+                joint = self._linearize_joint(state, name, params)
+            except (ProblemDefinitionError, ValueError, TypeError, IndexError):
+                joint = None
+            if joint is not None and mode:
+                return joint
+            separate = self.linearize(state, params) + (self.param_derivative(state, name, params),)
+            if joint is not None:
+                self._joint[name] = all(_agree(a, b) for a, b in zip(joint, separate))
+            else:
+                self._joint[name] = False
+            return separate
+        return self.linearize(state, params) + (self.param_derivative(state, name, params),)
+
+    def _linearize_joint(self, state, name, params):
+        dv = self.derivatives(state)
+        nf, na, npts = dv.shape
+        nslot = nf * na
+        base = dv[:, :, None, :]
+        pert = np.concatenate([base + self._plan_perturbation(), base.astype(complex)], axis=2)
+        value = np.full((nslot + 2, 1), params[name], dtype=complex)
+        value[nslot + 1, 0] += 1j * _H
+        with np.errstate(all="ignore"):
+            rows = self._evaluate(pert, {**params, name: value}, complex_step=True)
+        if rows.shape != (nf, nslot + 2, npts):
+            raise ValueError("the callbacks did not keep the batch axis")
+        F, A = split_rows(rows[:, : nslot + 1], nf, na, npts)
+        return F, A, (rows[:, nslot + 1].imag / _H).ravel()
+
     def check(self, state, params=None):
         """Evaluate the callbacks once and raise a clear error if they are malformed."""
         params = self.merged_params(params)
@@ -462,6 +515,16 @@ class Problem:
                 f"the residual is not finite at the initial guess in the equation(s) of {bad}"
             )
         return F
+
+
+def _agree(a, b):
+    """Equal to rounding (NaN where the other is NaN): the batched and separate routes."""
+    a, b = np.asarray(a), np.asarray(b)
+    if a.shape != b.shape or not np.array_equal(np.isnan(a), np.isnan(b)):
+        return False
+    ok = ~np.isnan(a)
+    scale = np.abs(b[ok]).max() if ok.any() else 0.0
+    return bool(np.all(np.abs(a[ok] - b[ok]) <= 1e-12 * scale))
 
 
 def _coordinate_namespaces(coords, faces):
