@@ -132,3 +132,56 @@ def test_polish_with_the_kept_factorisation_matches_a_fresh_one():
 def test_polish_needs_a_wider_type():
     res = solve(_linear_problem(16), 0.0)
     assert polish(res, dtype=np.float64) is None
+
+
+def test_bordered_inverse_solves_with_the_jacobian():
+    # block elimination on [[J, b], [c^T, d]] against numpy.linalg.solve with J itself
+    from spectral_bulk.exceptions import SingularJacobianError
+    from spectral_bulk.newton import BorderedInverse, DenseSolver
+
+    pr = _linear_problem(12)
+    _, A = pr.linearize(np.zeros(pr.size))
+    from spectral_bulk.newton import assemble_dense
+
+    J = assemble_dense(pr, A)
+    rng = np.random.default_rng(4)
+    b, c, rhs = rng.normal(size=(3, pr.size))
+    inv = BorderedInverse(DenseSolver(pr, A, border=(b, c, 0.7)), b)
+    np.testing.assert_allclose(inv.solve(rhs), np.linalg.solve(J, rhs), rtol=1e-10, atol=1e-12)
+    assert inv.kind == "dense"
+    # J singular (u'' with two Neumann ends), the bordered matrix regular: no inverse
+    sing = Problem(Chebyshev(10, (0.0, 1.0), "x"), ["u"], lambda c, f, p: [f.u_xx],
+                   {"left": lambda c, f, p: [f.u_x], "right": lambda c, f, p: [f.u_x]})
+    _, As = sing.linearize(np.zeros(sing.size))
+    ones = np.ones(sing.size)
+    inv = BorderedInverse(DenseSolver(sing, As, border=(ones, ones, 0.0)), ones)
+    with pytest.raises(SingularJacobianError):
+        inv.solve(rng.normal(size=sing.size))
+
+
+def test_continuation_points_polish_with_their_bordered_factorisation():
+    # the points of a family hand their tangent's factorisation to the observables, which
+    # refine with it exactly as with a fresh LU (Gelfand-Bratu closed form, common practice)
+    from spectral_bulk.continuation import follow
+
+    grid = Chebyshev(24, (0.0, 1.0), "x")
+    wall = lambda c, f, p: [f.u]  # noqa: E731
+    pr = Problem(grid, ["u"], lambda c, f, p: [f.u_xx + p.lam * np.exp(f.u)],
+                 {"left": wall, "right": wall}, {"lam": 0.5}, name="bratu")
+    seen = []
+
+    def observables(sol):
+        kept = getattr(sol, "_jacobian_solver", None)
+        seen.append(type(kept).__name__)
+        fresh = polish(solve(pr, sol, params=sol.params, tol=1e-13))
+        mine = polish(sol)
+        assert mine.improved
+        exact = _bratu_exact(float(sol.params["lam"]), grid.extended(1)[0])
+        return {"err": float(np.abs(mine.state - exact).max()),
+                "vs_fresh": float(np.abs(mine.state - fresh.state).max())}
+
+    br = follow(pr, 0.0, "lam", step=0.2, max_points=4, observables=observables, regrid=False)
+    ds = br.to_dataset()
+    assert "BorderedInverse" in seen
+    assert float(ds["err"].max()) < 1e-17 and float(ds["vs_fresh"].max()) < 1e-17
+    assert all(getattr(s, "_jacobian_solver", None) is None for s in br.solutions)

@@ -51,6 +51,7 @@ import numpy as np
 from .._utils import validate_tol
 from ..exceptions import ProblemDefinitionError, SingularJacobianError
 from ..newton import Problem, SolveResult, make_solver, residual_norm, scaled_norm
+from ..newton._linalg import BorderedInverse
 from ..newton._newton import initial_state
 
 log = logging.getLogger("spectral_bulk.continuation")
@@ -179,7 +180,7 @@ class _Point:
     """Internal continuation state at one point."""
 
     __slots__ = ("prob", "u", "lam", "t_u", "t_lam", "det_sign", "logdet", "s", "step", "kind",
-                 "iterations", "residual", "update", "tails", "solution", "observables")
+                 "iterations", "residual", "update", "tails", "solution", "observables", "factor")
 
     def __init__(self, prob, u, lam, **kw):
         self.prob, self.u, self.lam = prob, u, float(lam)
@@ -394,6 +395,10 @@ class _Follower:
         r = residual_norm(prob, F, A, u)
         p = _Point(prob, u, lam, t_u=t_u, t_lam=t_lam, det_sign=sign, logdet=logdet, tails=tails,
                    residual=r, **kw)
+        if tangent and getattr(solver, "kind", None) == "dense":
+            # J^{-1} from the factorisation at this point, for observables that refine the
+            # solution (polish); dropped once they are computed (make_solution)
+            p.factor = BorderedInverse(solver, Fl)
         return p
 
     def make_solution(self, p):
@@ -406,8 +411,12 @@ class _Follower:
                                  update=p.update if p.update is not None else np.nan,
                                  tail=dict(zip(prob.fields, map(float, p.tails))))
         fn = self.branch.observables_fn
+        p.solution._jacobian_solver, p.factor = p.factor, None
         if fn is not None:
-            obs = fn(p.solution)
+            try:
+                obs = fn(p.solution)
+            finally:
+                p.solution._jacobian_solver = None
             if not isinstance(obs, dict):
                 raise ProblemDefinitionError("`observables` must return a dict of floats or arrays")
             p.observables = {k: (float(v) if np.ndim(v) == 0 else np.asarray(v, dtype=float))

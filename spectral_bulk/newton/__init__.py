@@ -9,7 +9,7 @@
 ``polish``        refine a converged 1-D solution with residuals in extended precision
 """
 
-from ._linalg import DenseSolver, KrylovSolver, assemble_dense, jacobian_action, make_solver
+from ._linalg import BorderedInverse, DenseSolver, KrylovSolver, assemble_dense, jacobian_action, make_solver
 from ._newton import MESSAGES, NewtonOptions, check_jacobian, initial_state, residual_norm, scaled_norm, solve
 from ._polish import Polished, extended_precision_available, polish
 from ._problem import Namespace, Problem
@@ -30,6 +30,7 @@ __all__ = [
     "scaled_norm",
     "residual_norm",
     "DenseSolver",
+    "BorderedInverse",
     "KrylovSolver",
     "make_solver",
     "assemble_dense",

@@ -29,7 +29,8 @@ import scipy.sparse.linalg as spla
 from .._utils import EPS
 from ..exceptions import SingularJacobianError
 
-__all__ = ["DenseSolver", "KrylovSolver", "make_solver", "assemble_dense", "jacobian_action"]
+__all__ = ["DenseSolver", "KrylovSolver", "BorderedInverse", "make_solver", "assemble_dense",
+           "jacobian_action"]
 
 RCOND_MIN = 10 * EPS  # below this the Jacobian is treated as singular to working precision
 
@@ -254,6 +255,39 @@ class KrylovSolver:
 
     def slogdet(self):
         return self._dense_solver().slogdet()
+
+
+class BorderedInverse:
+    """``rhs -> J^{-1} rhs`` from a factorisation of the bordered matrix ``M = [[J, b], [c^T, d]]``.
+
+    Block elimination: with ``M [x; mu] = [rhs; 0]`` and ``M [y; nu] = [b; 0]``,
+    ``J (x + mu y / (1 - nu)) = rhs``.  The second solve is made once, on first use.
+    ``nu = 1`` exactly when ``J`` is singular (a fold, where ``M`` stays regular): then
+    :meth:`solve` raises :class:`SingularJacobianError`.  Used to refine a continuation
+    point with the factorisation its tangent was computed with.
+
+    Parameters
+    ----------
+    solver : DenseSolver or KrylovSolver
+        Factorisation of ``M`` (one border column).
+    b : ndarray, shape (n,)
+        The border column of ``M``.
+    """
+
+    def __init__(self, solver, b):
+        self.solver, self.b = solver, np.asarray(b, dtype=float).ravel()
+        self.kind = solver.kind
+        self._y = None
+        self._nu = np.nan
+
+    def solve(self, rhs):
+        if self._y is None:
+            z = self.solver.solve(np.append(self.b, 0.0))
+            self._y, self._nu = z[:-1], float(z[-1])
+        if not abs(1.0 - self._nu) > 1e-12:
+            raise SingularJacobianError("singular Jacobian: the bordered system gives no inverse")
+        z = self.solver.solve(np.append(np.asarray(rhs, dtype=float), 0.0))
+        return z[:-1] + z[-1] / (1.0 - self._nu) * self._y
 
 
 def make_solver(problem, A, kind="auto", border=None, rtol=1e-12, check=True):

@@ -21,6 +21,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import scipy.linalg as sla
 
+from ..exceptions import SingularJacobianError
 from ._linalg import assemble_dense
 
 __all__ = ["Polished", "polish", "extended_precision_available"]
@@ -31,11 +32,19 @@ REDUCTION = 1e-3
 
 
 def _jacobian_solve(result):
-    """``rhs -> J^{-1} rhs`` with the Newton iteration's last factorisation (kept on results
-    made with ``keep_factor``, as the branes do), or a new LU."""
+    """``rhs -> J^{-1} rhs`` with a factorisation kept on the result, or a new LU.
+
+    Kept are the Newton iteration's last factorisation (results made with ``keep_factor``,
+    as the branes do) and, on continuation points while their observables are computed,
+    the bordered factorisation of the tangent (:class:`~spectral_bulk.newton.BorderedInverse`).
+    """
     solver = getattr(result, "_jacobian_solver", None)
     if solver is not None and getattr(solver, "kind", None) == "dense":
-        return solver.solve
+        try:
+            solver.solve(np.zeros(result.problem.size))  # a singular one raises here
+            return solver.solve
+        except SingularJacobianError:
+            pass
     problem = result.problem
     _, A = problem.linearize(result.state, result.params)
     with np.errstate(all="ignore"):
