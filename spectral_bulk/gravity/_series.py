@@ -41,6 +41,23 @@ def _bshape(a, b):
     return a if a == b else np.broadcast_shapes(a, b)
 
 
+_CAUCHY = {}
+
+
+def _cauchy_plan(ma, mb, m):
+    """Rows of the flattened outer product ``a_i b_j`` sorted by ``k = i + j < m``, and the
+    start of each ``k`` (for :meth:`Series.__mul__`); cached by the three lengths."""
+    key = (ma, mb, m)
+    plan = _CAUCHY.get(key)
+    if plan is None:
+        rows, starts = [], []
+        for k in range(m):
+            starts.append(len(rows))
+            rows += [i * mb + (k - i) for i in range(max(0, k - mb + 1), min(k, ma - 1) + 1)]
+        plan = _CAUCHY[key] = (np.array(rows, dtype=np.intp), np.array(starts, dtype=np.intp))
+    return plan
+
+
 class Series:
     """Truncated Laurent series ``sum_k c[k] d^(val + k) + O(d^(val + len(c)))``.
 
@@ -163,13 +180,17 @@ class Series:
         v = self.val + other.val
         p = min(self.val + other.prec, other.val + self.prec)
         m = p - v
-        shape = (max(m, 0),) + _bshape(self.batch_shape, other.batch_shape)
-        c = np.zeros(shape, dtype=np.result_type(self.c, other.c))
-        for i in range(min(m, self.c.shape[0])):
-            j = min(m - i, other.c.shape[0])
-            if j > 0:
-                c[i:i + j] += self.c[i] * other.c[:j]
-        return Series(c, v).normalized()
+        a, b = self.c, other.c
+        ma, mb = min(m, a.shape[0]), min(m, b.shape[0])
+        if m <= 0 or ma <= 0 or mb <= 0:
+            shape = (max(m, 0),) + _bshape(self.batch_shape, other.batch_shape)
+            return Series(np.zeros(shape, dtype=np.result_type(a, b)), v).normalized()
+        # Cauchy product in three numpy calls: all products a_i b_j at once, then the sums
+        # over i + j = k (the numpy call count, not the arithmetic, is what costs here)
+        gather, starts = _cauchy_plan(ma, mb, m)
+        outer = a[:ma, None] * b[None, :mb]
+        outer = outer.reshape((ma * mb,) + outer.shape[2:])
+        return Series(np.add.reduceat(outer[gather], starts, axis=0), v).normalized()
 
     __rmul__ = __mul__
 
