@@ -143,22 +143,40 @@ class Geometry:
     def christoffel(self):
         """``Gamma^l_{m n}`` for ``m <= n`` (dict; zeros omitted)."""
         if self._gamma is None:
-            D = self.dim
+            r = self.radial
+            # Gamma_{s m n} = (d_m g_{sn} + d_n g_{sm} - d_s g_{mn}) / 2 with only d_r non-zero:
+            # each non-zero d_r g_{ab} feeds (s, m, n) = (a, r, b), (a, b, r) and (r, a, b);
+            # terms are kept per key in the order of the formula
+            parts = {}
+            for (a, b), d in self.dg.items():
+                if _is_zero(d):
+                    continue
+                if r <= b:
+                    parts.setdefault((a, r, b), [0, 0, 0])[0] = d
+                if b <= r:
+                    parts.setdefault((a, b, r), [0, 0, 0])[1] = d
+                if a <= b:
+                    parts.setdefault((r, a, b), [0, 0, 0])[2] = -1 * d
             first = {}
-            for s, m, n in itertools.product(range(D), repeat=3):
-                if m > n:
-                    continue
-                val = tensor_sum([self._d(m, (s, n)), self._d(n, (s, m)), -1 * self._d(s, (m, n))
-                                  if not _is_zero(self._d(s, (m, n))) else 0])
+            for key, terms in parts.items():
+                val = tensor_sum(terms)
                 if not _is_zero(val):
-                    first[(s, m, n)] = 0.5 * val
+                    first[key] = 0.5 * val
+            # Gamma^l_{m n} = g^{l s} Gamma_{s m n} over the non-zero inverse entries
+            by_s = {}
+            for (s_, m, n), v in first.items():
+                by_s.setdefault(s_, []).append(((m, n), v))
+            sums = {}
+            for (l, s_), ginv in self.inverse.items():
+                if _is_zero(ginv):
+                    continue
+                for mn, v in by_s.get(s_, ()):
+                    sums.setdefault((l,) + mn, []).append((s_, _mul(ginv, v)))
             gam = {}
-            for l, m, n in itertools.product(range(D), repeat=3):
-                if m > n:
-                    continue
-                val = tensor_sum(_mul(self.inv(l, s), first.get((s, m, n), 0)) for s in range(D))
+            for key in sorted(sums):  # sum over s in increasing order, as the formula reads
+                val = tensor_sum(t for _, t in sorted(sums[key], key=lambda st: st[0]))
                 if not _is_zero(val):
-                    gam[(l, m, n)] = val
+                    gam[key] = val
             self._gamma = gam
         return self._gamma
 
