@@ -21,6 +21,7 @@ from spectral_bulk.newton._workspace import (DenseWorkspace, GenericWorkspace, _
 from .problems import bratu_equations, bratu_exact, dirichlet_zero
 
 GENERIC = NewtonOptions(workspace="generic")
+D = K.dispatchers()  # the compiled kernels; K._*_py are their plain references
 
 
 def bratu(n=20, lam=1.0):
@@ -213,7 +214,7 @@ def test_prepare_kernel_matches_numpy_reference(seed, compiled):
     nf, n = problem.nfields, problem.grid.size
     size = nf * n
     J, w, rs = np.empty((size, size), order="F"), np.empty(nf), np.empty(size)
-    fun = K.prepare_dense if compiled else K._prepare_dense_py
+    fun = D.prepare_dense if compiled else K._prepare_dense_py
     DT = np.ascontiguousarray(problem._dense_ops().transpose(0, 2, 1))
     ok, rnorm, anorm = fun(A, DT, problem.row_sums(), F, u, problem.scales, J, w, rs, True)
     ok_r, rnorm_r, w_r, J_r, rs_r, anorm_r = K.prepare_dense_reference(problem, A, F, u)
@@ -234,11 +235,11 @@ def test_small_kernels_match_numpy(compiled):
     pick = (lambda c, p: c) if compiled else (lambda c, p: p)
     w = field_weights(problem, u)
     wk = np.empty(nf)
-    pick(K.field_weights_kernel, K._field_weights_py)(u, problem.scales, wk)
+    pick(D.field_weights, K._field_weights_py)(u, problem.scales, wk)
     np.testing.assert_array_equal(wk, w)
     b = np.random.default_rng(1).normal(size=u.size)
-    assert pick(K.scaled_norm_kernel, K._scaled_norm_py)(F, w) == pytest.approx(_snorm(F, w), rel=1e-15)
-    na_, nd_ = pick(K.damping_norms, K._damping_norms_py)(F, b, 0.3, w)
+    assert pick(D.scaled_norm, K._scaled_norm_py)(F, w) == pytest.approx(_snorm(F, w), rel=1e-15)
+    na_, nd_ = pick(D.damping_norms, K._damping_norms_py)(F, b, 0.3, w)
     assert na_ == pytest.approx(_snorm(F, w), rel=1e-15)
     assert nd_ == pytest.approx(_snorm(F - 0.7 * b, w), rel=1e-14)
     # tails against the grid's own (DCT) route
@@ -246,7 +247,7 @@ def test_small_kernels_match_numpy(compiled):
     x = problem.grid.coords["x"]
     vals = np.concatenate([np.exp(-x), np.tanh(8 * x), 1e-9 * np.cos(x) + 1e-12 * x**9])
     out = np.empty(nf)
-    pick(K.chebyshev_tails, K._chebyshev_tails_py)(vals, C, problem.scales, out)
+    pick(D.chebyshev_tails, K._chebyshev_tails_py)(vals, C, problem.scales, out)
     ref = problem.grid.tail(vals.reshape(nf, n), problem.scales)
     np.testing.assert_allclose(out, ref, rtol=1e-9, atol=1e-16)
     # complex-step rows -> residual and coefficients
@@ -255,7 +256,7 @@ def test_small_kernels_match_numpy(compiled):
     rows[:, -1, :].imag = 0.0
     rows[1, -1, 4] += 1e-3j  # out of the real domain at one point
     Fk, Ak = np.empty(nf * n), np.empty((nf, nf, na, n))
-    pick(K.split_rows_kernel, K._split_rows_py)(rows, 1e30, Fk, Ak)
+    pick(D.split_rows, K._split_rows_py)(rows, 1e30, Fk, Ak)
     Fr, Ar = split_rows(rows, nf, na, n)
     np.testing.assert_array_equal(np.isnan(Fk), np.isnan(Fr))
     assert np.isnan(Fk[n + 4]) and np.isnan(Fk).sum() == 1
@@ -263,7 +264,7 @@ def test_small_kernels_match_numpy(compiled):
     np.testing.assert_allclose(Ak, Ar, rtol=1e-15)
     lu = np.triu(rng.normal(size=(6, 6))) + np.diag([5, 1, 2, 3, 4, 0.5])
     d = np.abs(np.diag(lu))
-    assert pick(K.pivot_ratio, K._pivot_ratio_py)(lu) == pytest.approx(d.min() / d.max(), rel=1e-15)
+    assert pick(D.pivot_ratio, K._pivot_ratio_py)(lu) == pytest.approx(d.min() / d.max(), rel=1e-15)
 
 
 @pytest.mark.parametrize("compiled", [True, False])
@@ -272,8 +273,8 @@ def test_norm_kernels_propagate_nan_like_numpy(compiled):
     for bad, where in [(np.nan, 1), (np.inf, 1), (np.nan, 0), (np.nan, 2)]:
         x = np.array([0.1, 0.05, 0.3, 0.2])
         x[where] = bad
-        norm = K.scaled_norm_kernel if compiled else K._scaled_norm_py
-        damp = K.damping_norms if compiled else K._damping_norms_py
+        norm = D.scaled_norm if compiled else K._scaled_norm_py
+        damp = D.damping_norms if compiled else K._damping_norms_py
         ref = _snorm(x, w)
         got = norm(x, w)
         assert (np.isnan(ref) and np.isnan(got)) or ref == got
@@ -291,7 +292,7 @@ def test_fill_batch_kernel_matches_numpy(compiled):
     dstack = problem._plan()["dstack"]
     ref = (u.reshape(nf, n) @ dstack).reshape(nf, na, 1, n) + complex_step_perturbation(nf, na)
     buf = np.empty((nf, na, nf * na + 1, n), dtype=complex)
-    (K.fill_batch if compiled else K._fill_batch_py)(u, dstack, _H, buf)
+    (D.fill_batch if compiled else K._fill_batch_py)(u, dstack, _H, buf)
     np.testing.assert_allclose(buf.real, ref.real, rtol=1e-13, atol=1e-13 * np.abs(ref.real).max())
     np.testing.assert_array_equal(buf.imag, ref.imag)
 
@@ -317,7 +318,7 @@ def test_lu_solve_kernel_matches_lapack(compiled):
     M, lu, piv, rscale = _factors(rng, 23)
     rhs = rng.normal(size=23)
     out = np.empty(23)
-    (K.lu_solve if compiled else K._lu_solve_py)(lu, piv, rscale, rhs, out)
+    (D.lu_solve if compiled else K._lu_solve_py)(lu, piv, rscale, rhs, out)
     ref = -sla.lu_solve((lu, piv), rscale * rhs)
     np.testing.assert_allclose(out, ref, rtol=1e-12, atol=1e-12 * np.abs(ref).max())
     np.testing.assert_allclose(M @ out, -rhs, atol=1e-10 * np.abs(rhs).max())
@@ -336,20 +337,20 @@ def test_newton_update_and_trial_kernels_match_numpy(compiled):
     w = field_weights(problem, u)
     F = rng.normal(size=nf * n)
     dx = np.empty(nf * n)
-    ratio, ndx = pick(K.newton_update, K._newton_update_py)(lu, piv, rscale, F, w, dx, 1e-12)
+    ratio, ndx = pick(D.newton_update, K._newton_update_py)(lu, piv, rscale, F, w, dx, 1e-12)
     ref = -sla.lu_solve((lu, piv), rscale * F)
     d = np.abs(np.diag(lu))
     assert ratio == pytest.approx(d.min() / d.max(), rel=1e-15)
     np.testing.assert_allclose(dx, ref, rtol=1e-12, atol=1e-12 * np.abs(ref).max())
     assert ndx == pytest.approx(_snorm(ref, w), rel=1e-12)
     # a suspect factorisation (pivot ratio below the threshold) is left to the caller
-    assert np.isnan(pick(K.newton_update, K._newton_update_py)(lu, piv, rscale, F, w, dx, 2 * ratio)[1])
+    assert np.isnan(pick(D.newton_update, K._newton_update_py)(lu, piv, rscale, F, w, dx, 2 * ratio)[1])
 
     # the trial point and its batch
     dstack = problem._plan()["dstack"]
     trial = np.empty(nf * n)
     buf = np.empty((nf, na, nf * na + 1, n), dtype=complex)
-    pick(K.trial_point, K._trial_point_py)(u, 0.3, dx, trial, dstack, _H, buf)
+    pick(D.trial_point, K._trial_point_py)(u, 0.3, dx, trial, dstack, _H, buf)
     np.testing.assert_allclose(trial, u + 0.3 * dx, rtol=1e-15, atol=0)
     want = (trial.reshape(nf, n) @ dstack).reshape(nf, na, 1, n) + complex_step_perturbation(nf, na)
     np.testing.assert_allclose(buf.real, want.real, rtol=1e-13, atol=1e-13 * np.abs(want.real).max())
@@ -359,7 +360,7 @@ def test_newton_update_and_trial_kernels_match_numpy(compiled):
     rows = rng.normal(size=(nf, nf * na + 1, n)) + 1j * rng.normal(size=(nf, nf * na + 1, n)) * 1e-30
     rows[:, -1, :].imag = 0.0
     Ft, At, dxbar = np.empty(nf * n), np.empty((nf, nf, na, n)), np.empty(nf * n)
-    finite, nbar, dd, nnew = pick(K.after_trial, K._after_trial_py)(
+    finite, nbar, dd, nnew = pick(D.after_trial, K._after_trial_py)(
         rows, 1 / _H, Ft, At, lu, piv, rscale, dx, 0.3, w, trial, problem.scales, dxbar)
     Fr, Ar = split_rows(rows, nf, na, n)
     bar = -sla.lu_solve((lu, piv), rscale * Fr)
@@ -371,7 +372,7 @@ def test_newton_update_and_trial_kernels_match_numpy(compiled):
     assert dd == pytest.approx(_snorm(bar - 0.7 * dx, w), rel=1e-12)
     assert nnew == pytest.approx(_snorm(bar, field_weights(problem, trial)), rel=1e-12)
     rows[2, -1, 5] += 1e-3j  # the trial left the real domain at one point
-    assert not pick(K.after_trial, K._after_trial_py)(rows, 1 / _H, Ft, At, lu, piv, rscale, dx, 0.3, w,
+    assert not pick(D.after_trial, K._after_trial_py)(rows, 1 / _H, Ft, At, lu, piv, rscale, dx, 0.3, w,
                                                       trial, problem.scales, dxbar)[0]
 
 

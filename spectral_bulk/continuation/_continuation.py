@@ -411,8 +411,9 @@ class _Follower:
                                  update=p.update if p.update is not None else np.nan,
                                  tail=dict(zip(prob.fields, map(float, p.tails))))
         fn = self.branch.observables_fn
-        p.solution._jacobian_solver, p.factor = p.factor, None
+        factor, p.factor = p.factor, None  # the point and its solution never keep it
         if fn is not None:
+            p.solution._jacobian_solver = factor
             try:
                 obs = fn(p.solution)
             finally:

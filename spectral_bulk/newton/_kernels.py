@@ -8,20 +8,20 @@ pointwise linearisation, the per-field weights, the componentwise backward error
 (:class:`~spectral_bulk.newton.DenseSolver`).  At the sizes of one-dimensional
 problems the numpy calls cost microseconds each, far more than their arithmetic.
 
-Each compiled kernel has a numpy reference here (``*_reference``) computing the
-same quantities with the generic path's own functions; the tests compare them.
-numba is imported when a kernel is first needed, so importing the package stays
-cheap.
+The kernels are plain Python functions ``_<name>_py``; :func:`dispatchers` gives their
+compiled versions (``dispatchers().<name>``).  Two more steps of the Newton iteration are
+fused the same way: the correction after the LAPACK factorisation (``newton_update``)
+and everything the damping test needs at a trial point (``trial_point``,
+``after_trial``).  The tests compare each compiled kernel with its plain body and with
+the generic path's numpy functions (:func:`prepare_dense_reference`) or LAPACK.  numba
+is imported when a kernel is first needed, so importing the package stays cheap.
 """
 
 import types
 
 import numpy as np
 
-__all__ = ["prepare_dense", "prepare_dense_reference", "pivot_ratio", "scaled_norm_kernel",
-           "damping_norms", "chebyshev_tails", "split_rows_kernel",
-           "field_weights_kernel", "fill_batch", "lu_solve", "newton_update", "trial_point",
-           "after_trial", "dispatchers"]
+__all__ = ["dispatchers", "prepare_dense_reference"]
 
 _COMPILED = {}
 # Reassociation lets LLVM vectorise the sums and maxima over the (possibly cache-sized)
@@ -31,7 +31,7 @@ _FASTMATH = {"_prepare_dense_py": {"reassoc"}}
 
 
 def _prepare_dense_py(A, DT, R, F, u, scales, J, w, rscale, assemble):
-    """Body of :func:`prepare_dense` (compiled by numba; plain Python is the fallback).
+    """Checks, norms, assembly and equilibration of one Newton step (``dispatchers().prepare_dense``).
 
     Parameters
     ----------
@@ -291,15 +291,7 @@ def _newton_update_py(lu, piv, rscale, F, w, dx, min_ratio):
     when ``ratio <= min_ratio`` (a suspect factorisation, left to the caller's condition
     estimate) ``dx`` is not computed and ``ndx`` is NaN.
     """
-    n = lu.shape[0]
-    lo, hi = np.inf, 0.0
-    for i in range(n):
-        d = abs(lu[i, i])
-        if not np.isfinite(d):
-            return 0.0, np.nan
-        lo = min(lo, d)
-        hi = max(hi, d)
-    ratio = lo / hi if hi > 0 else 0.0
+    ratio = _pivot_ratio_py(lu)
     if ratio <= min_ratio:
         return ratio, np.nan
     _lu_solve_py(lu, piv, rscale, F, dx)
@@ -358,15 +350,18 @@ _KERNELS = {"prepare_dense": "_prepare_dense_py", "newton_update": "_newton_upda
             "trial_point": "_trial_point_py", "after_trial": "_after_trial_py",
             "fill_batch": "_fill_batch_py", "split_rows": "_split_rows_py",
             "scaled_norm": "_scaled_norm_py", "damping_norms": "_damping_norms_py",
-            "field_weights": "_field_weights_py", "chebyshev_tails": "_chebyshev_tails_py"}
+            "field_weights": "_field_weights_py", "chebyshev_tails": "_chebyshev_tails_py",
+            "lu_solve": "_lu_solve_py", "pivot_ratio": "_pivot_ratio_py"}
 _DISPATCH = None
 
 
 def dispatchers():
-    """The compiled kernels of the workspace as attributes, by the names of their wrappers.
+    """The compiled kernels, as attributes named after their bodies without ``_..._py``.
 
-    Hot loops call these directly (one call instead of a wrapper and a lookup); arguments
-    must already have the kernels' types (``lam`` a float).
+    ``dispatchers().prepare_dense`` is the compiled :func:`_prepare_dense_py`, and so on
+    (numba compiles each on its first call; arguments must have the kernels' types, e.g.
+    ``lam`` a float).  The plain ``*_py`` functions are the fallback and the reference the
+    tests compare with.
     """
     global _DISPATCH
     if _DISPATCH is None:
@@ -374,69 +369,8 @@ def dispatchers():
     return _DISPATCH
 
 
-def lu_solve(lu, piv, rscale, rhs, out):
-    """Compiled :func:`_lu_solve_py`."""
-    _compiled(_lu_solve_py)(lu, piv, rscale, rhs, out)
-
-
-def newton_update(lu, piv, rscale, F, w, dx, min_ratio):
-    """Compiled :func:`_newton_update_py`."""
-    return _compiled(_newton_update_py)(lu, piv, rscale, F, w, dx, min_ratio)
-
-
-def trial_point(u, lam, dx, trial, dstack, h, buf):
-    """Compiled :func:`_trial_point_py`."""
-    _compiled(_trial_point_py)(u, float(lam), dx, trial, dstack, h, buf)
-
-
-def after_trial(rows, inv_h, Ft, At, lu, piv, rscale, dx, lam, w, trial, scales, dxbar):
-    """Compiled :func:`_after_trial_py`."""
-    return _compiled(_after_trial_py)(rows, inv_h, Ft, At, lu, piv, rscale, dx, float(lam),
-                                                    w, trial, scales, dxbar)
-
-
-def prepare_dense(A, DT, R, F, u, scales, J, w, rscale, assemble=True):
-    """Compiled :func:`_prepare_dense_py` (see there for the arguments)."""
-    return _compiled(_prepare_dense_py)(A, DT, R, F, u, scales, J, w, rscale, assemble)
-
-
-def pivot_ratio(lu):
-    """Compiled :func:`_pivot_ratio_py`."""
-    return _compiled(_pivot_ratio_py)(lu)
-
-
-def scaled_norm_kernel(dx, w):
-    """Compiled :func:`_scaled_norm_py`."""
-    return _compiled(_scaled_norm_py)(dx, w)
-
-
-def field_weights_kernel(u, scales, w):
-    """Compiled :func:`_field_weights_py`."""
-    _compiled(_field_weights_py)(u, scales, w)
-
-
-def fill_batch(u, dstack, h, buf):
-    """Compiled :func:`_fill_batch_py`."""
-    _compiled(_fill_batch_py)(u, dstack, h, buf)
-
-
-def split_rows_kernel(rows, inv_h, F, A):
-    """Compiled :func:`_split_rows_py`."""
-    _compiled(_split_rows_py)(rows, inv_h, F, A)
-
-
-def damping_norms(a, b, lam, w):
-    """Compiled :func:`_damping_norms_py`."""
-    return _compiled(_damping_norms_py)(a, b, float(lam), w)
-
-
-def chebyshev_tails(u, C, scales, out):
-    """Compiled :func:`_chebyshev_tails_py`."""
-    return _compiled(_chebyshev_tails_py)(u, C, scales, out)
-
-
 def prepare_dense_reference(problem, A, F, u):
-    """What :func:`prepare_dense` computes, by the generic path's numpy functions.
+    """What :func:`_prepare_dense_py` computes, by the generic path's numpy functions.
 
     Returns
     -------
