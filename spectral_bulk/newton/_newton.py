@@ -307,7 +307,6 @@ def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False):
 
     lam = opts.lambda_init
     prev = None  # (norm dx, dxbar, lam) of the previous iteration
-    step = None
     pending = None  # linearisation of the accepted trial point, if any
     linearize_trial = reuse and opts.damping
     for _ in range(opts.max_iter):
@@ -318,7 +317,6 @@ def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False):
             F, A = ws.linearize(u)
             info["nfev"] += 1
         info["njev"] += 1
-        last = step
         step = ws.step(u, F, A)
         if step.status == 3:
             if first_is_input and info["njev"] == 1:
@@ -327,8 +325,7 @@ def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False):
             return finish(3, u, F=F)
         info["residual_norms"].append(step.rnorm)
         if step.status == 2:
-            # a factorisation that failed outright reports the previous one's condition
-            return finish(2, u, A=A, F=F, solver=step.solver or (last and last.solver))
+            return finish(2, u, A=A, F=F, solver=step.solver)
         if step.status == 7:  # pragma: no cover - defensive
             fmt["why"] = step.why
             return finish(7, u, A=A, F=F)
