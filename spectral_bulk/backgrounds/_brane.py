@@ -310,11 +310,13 @@ class Brane:
         d = self.d
         f = 1 - z**d
         S = fs["A"] if self.gauge == "tortoise" else fs["S"]
-        g = {(0, 0): -1 * (f * fs["A"]) / z**2, (1, 1): S / (z**2 * f), (2, 2): fs["B"] / z**2}
-        ref = {(0, 0): -1 * f / z**2, (1, 1): 1 / (z**2 * f), (2, 2): 1 / z**2}
+        iz2 = 1 / (z * z)  # series division is the costly operation: each inverse once
+        izf = iz2 / f
+        g = {(0, 0): -1 * (f * fs["A"]) * iz2, (1, 1): S * izf, (2, 2): fs["B"] * iz2}
+        ref = {(0, 0): -1 * f * iz2, (1, 1): izf, (2, 2): iz2}
         for i in range(3, d + 1):
-            g[(i, i)] = fs["C"] / z**2
-            ref[(i, i)] = 1 / z**2
+            g[(i, i)] = fs["C"] * iz2
+            ref[(i, i)] = iz2
         return g, (ref if self.gauge == "deturck" else None)
 
     def _metric_power(self, u, fs):
@@ -323,8 +325,9 @@ class Brane:
         z = u**p
         f = 1 - z**3
         A, B, C = fs["A"], fs["B"], fs["C"]
-        g = {(0, 0): -1 * (f * A) / z**2, (1, 1): A * (p * p) / (u**2 * f), (2, 2): B / z**2,
-             (3, 3): C / z**2}
+        iz2 = 1 / (z * z)
+        g = {(0, 0): -1 * (f * A) * iz2, (1, 1): A * (p * p) / (u * u * f), (2, 2): B * iz2,
+             (3, 3): C * iz2}
         return g, None
 
     def evaluate(self, z, fs, p):
