@@ -33,6 +33,11 @@ __all__ = ["Geometry", "ScalarField", "tensor_sum"]
 
 def _is_zero(x):
     # hot path of the sparse tensor bookkeeping: avoid numpy calls for the common types
+    t = type(x)
+    if t is Series:
+        return False
+    if t is int or t is float:
+        return x == 0
     if x is None:
         return True
     if isinstance(x, Series):

@@ -96,7 +96,7 @@ class Series:
         """Drop leading coefficients that are exactly zero everywhere (raise the valuation)."""
         c, v = self.c, self.val
         k = 0
-        while k < c.shape[0] - 1 and not c[k].any():
+        while k < c.shape[0] - 1 and not np.count_nonzero(c[k]):  # (a C call; .any() wraps Python)
             k += 1
         if k:
             return Series(c[k:], v + k)
