@@ -399,3 +399,16 @@ def test_linearize_with_param_falls_back_for_scalar_only_callbacks(how):
         np.testing.assert_array_equal(a, b)
     with pytest.raises(ProblemDefinitionError, match="unknown parameter"):
         problem.linearize_with_param(u, "t")
+
+
+@pytest.mark.parametrize("workspace", ["auto", "generic"])
+def test_undamped_newton_in_1d_evaluates_once_per_iteration(workspace):
+    # the linearisation at each new point serves the next step: evaluations are the guess,
+    # each new point (one per iteration but the last, whose update is below tolerance) and
+    # the certificate at the result (Gelfand-Bratu closed form, tests/problems.py)
+    res = sb.solve(bratu_problem(20, 1.0), 0.0, options=NewtonOptions(damping=False, tol=1e-10,
+                                                                     workspace=workspace))
+    assert res.converged
+    assert res.nfev == res.iterations + 1
+    x = res.grid.coords["x"]
+    assert np.abs(res.fields["u"] - bratu_exact(x, 1.0, "lower")).max() < 1e-10

@@ -278,8 +278,8 @@ def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False):
                why="")
     # In 1-D the trial point is linearised right away (its real part is the residual
     # the monotonicity test needs); when the step is accepted, as it is near the
-    # solution, that linearisation serves the next iteration.
-    reuse = problem.grid.ndim == 1
+    # solution (and always without damping), that linearisation serves the next iteration.
+    linearize_trial = problem.grid.ndim == 1
     ws = workspace(problem, params, opts)
 
     def finish(status, state, A=None, F=None, solver=None):
@@ -308,7 +308,6 @@ def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False):
     lam = opts.lambda_init
     prev = None  # (norm dx, dxbar, lam) of the previous iteration
     pending = None  # linearisation of the accepted trial point, if any
-    linearize_trial = reuse and opts.damping
     for _ in range(opts.max_iter):
         if pending is not None:
             F, A = pending
