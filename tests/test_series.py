@@ -51,6 +51,9 @@ def test_product_with_broadcast_batches_and_scalars():
     t = Series(a, 1) * 2.5
     np.testing.assert_allclose(t.c, 2.5 * a)
     assert t.val == 1
+    assert (3 * Series(a, 1)).val == 1 and np.array_equal((3 * Series(a, 1)).c, 3 * a)
+    z = Series(a, 1) * 0  # an exact zero: no known non-zero coefficient is left
+    assert not np.any(z.c) and z.prec == Series(a, 1).prec
 
 
 def test_leading_zeros_raise_the_valuation():

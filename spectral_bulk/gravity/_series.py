@@ -174,6 +174,11 @@ class Series:
         return (-self) + other
 
     def __mul__(self, other):
+        t = type(other)
+        if (t is float or t is int) and other != 0 and other - other == 0:
+            # a finite non-zero number keeps every coefficient's zero pattern: nothing to
+            # normalise (half the products of a curvature evaluation are of this kind)
+            return Series(self.c * other, self.val)
         if not isinstance(other, Series):
             other = _as_array(other)
             return Series(self.c * other, self.val).normalized()
