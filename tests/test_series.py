@@ -99,3 +99,21 @@ def test_laurent_reciprocal_and_pole_order():
     np.testing.assert_allclose([r.coefficient(i) for i in range(-1, 3)], [1.0, 1.0, 1.0, 1.0])
     with pytest.raises(ZeroDivisionError):
         Series(np.array([[0.0, 1.0], [1.0, 1.0]]), 0).reciprocal()  # leading zero at one point
+
+
+@pytest.mark.parametrize("va,la,vb,lb", [(0, 3, 0, 3), (0, 2, 0, 4), (-1, 3, 0, 2), (1, 3, 0, 4)])
+def test_sum_is_known_to_the_lower_precision(va, la, vb, lb):
+    # coefficientwise sum (numpy.polynomial.polynomial.polyadd on the shifted coefficients)
+    rng = np.random.default_rng(10 + va + la + vb + lb)
+    a, b = _rand(rng, la), _rand(rng, lb)
+    a[0] += 3.0
+    b[0] += 3.0
+    s = Series(a, va) + Series(b, vb)
+    v = min(va, vb)
+    assert s.prec == min(va + la, vb + lb)
+    for idx in np.ndindex(2, 3):
+        pa = np.r_[np.zeros(va - v), a[(slice(None),) + idx]]
+        pb = np.r_[np.zeros(vb - v), b[(slice(None),) + idx]]
+        ref = P.polyadd(pa, pb)[: s.prec - v]
+        got = np.array([s.coefficient(k)[idx] for k in range(v, s.prec)])
+        np.testing.assert_allclose(got, ref, rtol=1e-14, atol=1e-14)

@@ -153,6 +153,10 @@ class Series:
                 np.result_type(self.c, other))
             c[-self.val] = c[-self.val] + other
             return Series(c, self.val).normalized()
+        if self.val == other.val:  # the common case: one numpy call (and exactly the same sum)
+            m = min(self.c.shape[0], other.c.shape[0])
+            if m > 0:
+                return Series(self.c[:m] + other.c[:m], self.val).normalized()
         v = min(self.val, other.val)
         p = min(self.prec, other.prec)
         if p <= v:
