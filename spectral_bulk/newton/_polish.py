@@ -27,8 +27,16 @@ from ._linalg import assemble_dense
 __all__ = ["Polished", "polish", "extended_precision_available"]
 
 
-#: a refinement stops once the extended residual fell this much below the double one
-REDUCTION = 1e-3
+def _floor_ratio(dtype):
+    """Where refinement stops: the extended residual within 4x of its rounding level.
+
+    A converged double solution has its residual at double rounding, ``r0 ~ eps64 T``
+    (``T`` the size of the residual's terms); the same terms round at ``eps(dtype) T``
+    in ``dtype``, so the extended residual cannot fall below about ``r0 eps(dtype)/eps64``
+    (``4.9e-4 r0`` for the x87 80-bit type).  One step normally gets there.
+    """
+    return 4 * float(np.finfo(dtype).eps / np.finfo(np.float64).eps)
+
 
 
 def _jacobian_solve(result):
@@ -122,9 +130,9 @@ def polish(result, steps=4, dtype=np.longdouble):
         norms.append(float(np.abs(r).max()))
         if not norms[-1] < best[0]:
             break
-        # stop when a step gains little, or once the residual fell by REDUCTION (one step
-        # usually takes a double solution to the extended rounding level)
-        done = norms[-1] > 0.5 * best[0] or norms[-1] <= REDUCTION * norms[0]
+        # stop when a step gains little, or once the residual is at the extended rounding
+        # level (one step usually takes a double solution there)
+        done = norms[-1] > 0.5 * best[0] or norms[-1] <= _floor_ratio(dtype) * norms[0]
         best = (norms[-1], u)
         if done:
             break
