@@ -304,31 +304,22 @@ class Brane:
         at = fs.get("at") if self.charged else None
         return MatterContent(scal, phase, axions, at)
 
-    def _metric(self, z, fs):
-        if self.power != 1:
-            return self._metric_power(z, fs)
-        d = self.d
+    def _metric(self, x, fs):
+        """Metric components in the grid coordinate ``x``: ``z = x^p``, ``dz = p x^{p-1} dx``
+        (``p = 1`` except for rational falloffs; module notes)."""
+        d, p = self.d, self.power
+        z = x if p == 1 else x**p
         f = 1 - z**d
         S = fs["A"] if self.gauge == "tortoise" else fs["S"]
-        iz2 = 1 / (z * z)  # series division is the costly operation: each inverse once
-        izf = iz2 / f
+        ix2 = 1 / (x * x)  # series division is the costly operation: each inverse once
+        iz2 = ix2 if p == 1 else 1 / (z * z)
+        izf = (p * p) * ix2 / f  # g_xx / S = p^2 / (x^2 f)
         g = {(0, 0): -1 * (f * fs["A"]) * iz2, (1, 1): S * izf, (2, 2): fs["B"] * iz2}
         ref = {(0, 0): -1 * f * iz2, (1, 1): izf, (2, 2): iz2}
         for i in range(3, d + 1):
             g[(i, i)] = fs["C"] * iz2
             ref[(i, i)] = iz2
         return g, (ref if self.gauge == "deturck" else None)
-
-    def _metric_power(self, u, fs):
-        """Metric in ``u`` (``z = u^p``, ``dz = p u^{p-1} du``; module notes)."""
-        p = self.power
-        z = u**p
-        f = 1 - z**3
-        A, B, C = fs["A"], fs["B"], fs["C"]
-        iz2 = 1 / (z * z)
-        g = {(0, 0): -1 * (f * A) * iz2, (1, 1): A * (p * p) / (u * u * f), (2, 2): B * iz2,
-             (3, 3): C * iz2}
-        return g, None
 
     def evaluate(self, z, fs, p):
         """All equations as series at points ``z`` (a Series) for field series ``fs``."""

@@ -38,7 +38,6 @@ def _floor_ratio(dtype):
     return 4 * float(np.finfo(dtype).eps / np.finfo(np.float64).eps)
 
 
-
 def _jacobian_solve(result):
     """``rhs -> J^{-1} rhs`` with a factorisation kept on the result, or a new LU.
 

@@ -470,20 +470,18 @@ class Problem:
         if name not in params:
             raise ProblemDefinitionError(f"unknown parameter {name!r}; have {sorted(params)}")
         mode = self._joint.get(name)
+        joint = None
         if mode is not False and self.linearization == "complex-step" and self._batched:
             try:
                 joint = self._linearize_joint(state, name, params)
             except (ProblemDefinitionError, ValueError, TypeError, IndexError):
-                joint = None
+                pass
             if joint is not None and mode:
                 return joint
-            separate = self.linearize(state, params) + (self.param_derivative(state, name, params),)
-            if joint is not None:
-                self._joint[name] = all(_agree(a, b) for a, b in zip(joint, separate))
-            else:
-                self._joint[name] = False
-            return separate
-        return self.linearize(state, params) + (self.param_derivative(state, name, params),)
+        separate = self.linearize(state, params) + (self.param_derivative(state, name, params),)
+        if mode is None:  # the first call decides, once
+            self._joint[name] = joint is not None and all(_agree(a, b) for a, b in zip(joint, separate))
+        return separate
 
     def _linearize_joint(self, state, name, params):
         dv = self.derivatives(state)
