@@ -23,7 +23,7 @@ def _rand(rng, m, batch=(2, 3), dtype=float):
 
 
 @pytest.mark.parametrize("va,la,vb,lb", [(0, 3, 0, 3), (0, 4, 1, 3), (-1, 3, 2, 5), (1, 1, 0, 4),
-                                         (-2, 5, -1, 2)])
+                                         (-2, 5, -1, 2), (0, 4, 2, 4), (0, 6, 1, 7), (-1, 8, 0, 5)])
 @pytest.mark.parametrize("dtype", [float, complex])
 def test_product_matches_polymul_to_the_known_order(va, la, vb, lb, dtype):
     rng = np.random.default_rng(va * 7 + la * 3 + vb + lb)
@@ -39,6 +39,24 @@ def test_product_matches_polymul_to_the_known_order(va, la, vb, lb, dtype):
         np.testing.assert_allclose(got, ref, rtol=1e-13, atol=1e-13)
     with pytest.raises(PrecisionError):
         s.coefficient(s.prec)
+
+
+@pytest.mark.parametrize("m", [1, 2, 3, 4])
+@pytest.mark.parametrize("dtype", [np.float64, np.complex128, np.longdouble, np.clongdouble])
+def test_short_products_are_bitwise_those_of_the_long_route(m, dtype, monkeypatch):
+    # short series are multiplied term by term, longer ones through np.add.reduceat; the two
+    # routes sum in the same order, so a result does not depend on which one served it
+    import spectral_bulk.gravity._series as series_module
+
+    rng = np.random.default_rng(m)
+    a = _rand(rng, m + 1, batch=(4, 5), dtype=complex if np.iscomplexobj(dtype(0)) else float)
+    b = _rand(rng, m, batch=(1, 5), dtype=complex if np.iscomplexobj(dtype(0)) else float)
+    a, b = Series(a.astype(dtype), 0), Series(b.astype(dtype), -1)
+    short = a * b
+    monkeypatch.setattr(series_module, "_SHORT", 0)
+    long = a * b
+    assert short.val == long.val and short.c.dtype == long.c.dtype == dtype
+    assert np.array_equal(short.c, long.c)
 
 
 def test_product_with_broadcast_batches_and_scalars():

@@ -42,6 +42,7 @@ def _bshape(a, b):
 
 
 _CAUCHY = {}
+_SHORT = 4  # up to this length a product is cheaper term by term than by reduceat
 
 
 def _cauchy_plan(ma, mb, m):
@@ -56,6 +57,28 @@ def _cauchy_plan(ma, mb, m):
             rows += [i * mb + (k - i) for i in range(max(0, k - mb + 1), min(k, ma - 1) + 1)]
         plan = _CAUCHY[key] = (np.array(rows, dtype=np.intp), np.array(starts, dtype=np.intp))
     return plan
+
+
+def _new(c, val):
+    """``Series(c, val)`` for an ndarray ``c`` of ``ndim >= 1`` and an int ``val`` (the hot
+    paths; skips the constructor's conversions)."""
+    s = object.__new__(Series)
+    s.c = c
+    s.val = val
+    return s
+
+
+_ORDERS = {}
+
+
+def _orders(val, prec, ndim):
+    """``[val, ..., prec - 1]`` shaped to multiply coefficients of ``ndim`` dimensions (cached)."""
+    key = (val, prec, ndim)
+    k = _ORDERS.get(key)
+    if k is None:
+        k = _ORDERS[key] = np.arange(val, prec).reshape((-1,) + (1,) * (ndim - 1))
+        k.flags.writeable = False
+    return k
 
 
 class Series:
@@ -99,7 +122,7 @@ class Series:
         while k < c.shape[0] - 1 and not np.count_nonzero(c[k]):  # (a C call; .any() wraps Python)
             k += 1
         if k:
-            return Series(c[k:], v + k)
+            return _new(c[k:], v + k)
         return self
 
     def coefficient(self, n):
@@ -115,7 +138,7 @@ class Series:
         m = max(0, min(self.c.shape[0], prec - self.val))
         if m == 0:
             return Series(np.zeros((1,) + self.batch_shape, dtype=self.c.dtype), prec - 1)._unknown()
-        return Series(self.c[:m], self.val)
+        return _new(self.c[:m], self.val)
 
     def _unknown(self):
         # a series with no known coefficient: represented with val = prec (zero terms)
@@ -128,16 +151,15 @@ class Series:
         """``d/dd`` of the series (precision drops by one)."""
         if self.c.shape[0] == 0:
             return Series(self.c, self.val - 1)
-        k = np.arange(self.val, self.prec).reshape((-1,) + (1,) * (self.c.ndim - 1))
-        c = self.c * k
-        return Series(c, self.val - 1).normalized()
+        c = self.c * _orders(self.val, self.prec, self.c.ndim)
+        return _new(c, self.val - 1).normalized()
 
     def __repr__(self):
         return f"Series(val={self.val}, prec={self.prec}, batch={self.batch_shape})"
 
     # ------------------------------------------------------------- arithmetic
     def __neg__(self):
-        return Series(-self.c, self.val)
+        return _new(-self.c, self.val)
 
     def __pos__(self):
         return self
@@ -156,7 +178,7 @@ class Series:
         if self.val == other.val:  # the common case: one numpy call (and exactly the same sum)
             m = min(self.c.shape[0], other.c.shape[0])
             if m > 0:
-                return Series(self.c[:m] + other.c[:m], self.val).normalized()
+                return _new(self.c[:m] + other.c[:m], self.val).normalized()
         v = min(self.val, other.val)
         p = min(self.prec, other.prec)
         if p <= v:
@@ -182,10 +204,10 @@ class Series:
         if (t is float or t is int) and other != 0 and other - other == 0:
             # a finite non-zero number keeps every coefficient's zero pattern: nothing to
             # normalise (half the products of a curvature evaluation are of this kind)
-            return Series(self.c * other, self.val)
+            return _new(self.c * other, self.val)
         if not isinstance(other, Series):
             other = _as_array(other)
-            return Series(self.c * other, self.val).normalized()
+            return _new(self.c * other, self.val).normalized()
         v = self.val + other.val
         p = min(self.val + other.prec, other.val + self.prec)
         m = p - v
@@ -194,12 +216,23 @@ class Series:
         if m <= 0 or ma <= 0 or mb <= 0:
             shape = (max(m, 0),) + _bshape(self.batch_shape, other.batch_shape)
             return Series(np.zeros(shape, dtype=np.result_type(a, b)), v).normalized()
+        if m <= _SHORT:
+            # short series (the Taylor series of regular points): c_k = a_0 b_k + (a_1 b_{k-1} +
+            # a_2 b_{k-2} + ...) in 2m - 1 numpy calls, summed in the order np.add.reduceat
+            # uses below (the same numbers, bit for bit; test_series checks it)
+            c = a[0] * b[:m]
+            if m > 1:
+                rest = a[1] * b[:m - 1]
+                for i in range(2, m):
+                    rest[i - 1:] += a[i] * b[:m - i]
+                c[1:] += rest
+            return _new(c, v).normalized()
         # Cauchy product in three numpy calls: all products a_i b_j at once, then the sums
         # over i + j = k (the numpy call count, not the arithmetic, is what costs here)
         gather, starts = _cauchy_plan(ma, mb, m)
         outer = a[:ma, None] * b[None, :mb]
         outer = outer.reshape((ma * mb,) + outer.shape[2:])
-        return Series(np.add.reduceat(outer[gather], starts, axis=0), v).normalized()
+        return _new(np.add.reduceat(outer[gather], starts, axis=0), v).normalized()
 
     __rmul__ = __mul__
 

@@ -38,6 +38,7 @@ sees the energy only through ``f_3``) is, and the first law along families and
 ``p_x = -f + k df/dk`` check the result too (tests).
 """
 
+import functools
 import math
 
 import numpy as np
@@ -210,9 +211,14 @@ def _stress_tensor(bg, sol, values=None):
                 lams=lams, rho2s=rho2s, mu=mu, charge=rho_c, G1=G[1], shift=shift)
 
 
+@functools.lru_cache(maxsize=32)
 def _gauss_points(m):
+    """Gauss-Legendre nodes and weights on [0, 1] (cached: ``leggauss`` costs more than the
+    quadrature it serves; read-only arrays)."""
     x, w = np.polynomial.legendre.leggauss(m)
-    return 0.5 * (x + 1), 0.5 * w
+    x, w = 0.5 * (x + 1), 0.5 * w
+    x.flags.writeable = w.flags.writeable = False
+    return x, w
 
 
 def _action_free_energy(bg, sol, lam_beta, energy_std, shift=0.0):
@@ -296,8 +302,7 @@ def _quartic_remainder(V, rho):
 
     d3 = float(np.real(nth(V, 3)(0.0)))
     d4 = nth(V, 4)
-    t, w = np.polynomial.legendre.leggauss(16)
-    t, w = 0.5 * (t + 1), 0.5 * w
+    t, w = _gauss_points(16)
     rho = np.asarray(rho, dtype=float)
     # all quadrature nodes in one evaluation (the nested duals cost per call, not per point)
     vals = np.real(d4(t[:, None] * rho[None, :]))
