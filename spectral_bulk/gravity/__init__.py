@@ -2,9 +2,11 @@
 
 ``Series``           truncated Laurent series with precision tracking (numpy-compatible)
 ``taylor``           a series from a value and its derivatives
+``Jet``              truncated Taylor polynomial in several coordinates (regular points)
+``coordinate_jets``, ``jet_from_derivatives``  jets of coordinates and of fields
 ``Dual``             dual numbers for automatic derivatives of model functions
-``Geometry``         Christoffel symbols, Ricci tensor, DeTurck vector of a radial metric
-``ScalarField``      a scalar with its radial profile and constant extra gradients
+``Geometry``         Christoffel symbols, Ricci tensor, DeTurck vector (radial or several coordinates)
+``ScalarField``      a scalar with its profile and constant extra gradients
 ``MatterContent``    the matter fields entering the equations
 ``einstein_deturck`` Einstein-DeTurck, scalar and Maxwell equations at once
 """
@@ -12,7 +14,9 @@
 from ._dual import Dual, derivative, partials
 from ._einstein import MatterContent, einstein_deturck
 from ._geometry import Geometry, ScalarField, tensor_sum
+from ._jet import Jet, coordinate_jets, jet_from_derivatives
 from ._series import PrecisionError, Series, constant_series, coordinate_series, taylor
 
 __all__ = ["Series", "PrecisionError", "taylor", "constant_series", "coordinate_series", "Dual", "derivative", "partials",
-           "Geometry", "ScalarField", "tensor_sum", "MatterContent", "einstein_deturck"]
+           "Geometry", "ScalarField", "tensor_sum", "MatterContent", "einstein_deturck",
+           "Jet", "coordinate_jets", "jet_from_derivatives"]

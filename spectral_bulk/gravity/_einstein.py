@@ -59,7 +59,7 @@ def _covector(field, D, radial):
     return {m: field.grad(m, radial) for m in range(D) if not _is_zero(field.grad(m, radial))}
 
 
-def einstein_deturck(metric, reference, model, matter, radial=1, dim=None):
+def einstein_deturck(metric, reference, model, matter, radial=1, dim=None, dependent=None):
     """Evaluate the equations of motion for a metric depending on one coordinate.
 
     Parameters
@@ -75,6 +75,10 @@ def einstein_deturck(metric, reference, model, matter, radial=1, dim=None):
         Index of the radial coordinate.
     dim : int, optional
         Spacetime dimension (default ``model.d + 1``).
+    dependent : tuple of int, optional
+        Coordinates the fields depend on (default ``(radial,)``, values are
+        :class:`Series`); with several, metric and scalars are :class:`Jet` values in
+        them (the Maxwell field must then be absent).
 
     Returns
     -------
@@ -84,12 +88,15 @@ def einstein_deturck(metric, reference, model, matter, radial=1, dim=None):
         the DeTurck norm ``xi^mu xi_mu``, ``"geometry"``: the :class:`Geometry`.
     """
     D = dim or model.d + 1
-    geo = Geometry(metric, D, radial)
+    if matter.at is not None and dependent is not None and tuple(dependent) != (radial,):
+        raise NotImplementedError("the Maxwell equation is implemented for A_t depending on the "
+                                  "radial coordinate only")
+    geo = Geometry(metric, D, radial, dependent)
     ric = geo.ricci
     if reference is None:  # plain Einstein equations (gauge fixed by the ansatz)
         xi_up, sym = {}, {}
     else:
-        xi_up, sym = geo.deturck(Geometry(reference, D, radial))
+        xi_up, sym = geo.deturck(Geometry(reference, D, radial, dependent))
     phis = [ScalarField(s) for s in matter.scalars]
     grads = [_covector(f, D, radial) for f in phis]
     V = model.V(*matter.scalars)

@@ -1,4 +1,4 @@
-"""Pointwise curvature of a metric that depends on one coordinate.
+"""Pointwise curvature of a metric that depends on one coordinate, or on several.
 
 The metric components are given as truncated series (:class:`Series`) in the
 offset of the radial coordinate from the evaluation point, with the batch of
@@ -6,6 +6,11 @@ points (and complex-step perturbations) carried in the coefficients; constants
 (numbers or arrays) are allowed and zero components are simply omitted.  All
 tensors are sparse dicts keyed by index tuples, so a diagonal metric costs a
 fraction of the dense formulas.
+
+Components that depend on several coordinates (a periodic lattice: the radial one
+and a boundary direction) are :class:`~spectral_bulk.gravity.Jet` values, truncated
+Taylor polynomials in the offsets of those coordinates; ``dependent`` names the
+coordinates and the same formulas take every partial derivative along them.
 
 Formulas (common practice; e.g. "General Relativity", University of Chicago
 Press (1984), chapter 3):
@@ -17,15 +22,17 @@ Press (1984), chapter 3):
     xi^m = g^{a b} (Gamma^m_{a b} - Gammabar^m_{a b})            (DeTurck vector)
     (nabla xi)_{(m n)} = (d_m xi_n + d_n xi_m)/2 - Gamma^l_{m n} xi_l
 
-Only the radial derivative is non-zero for metric components; scalar fields may
-in addition depend linearly on other coordinates (a Q-lattice phase ``k x``,
-axions ``alpha x``) through explicit constant gradients.
+Metric components have non-zero derivatives along the ``dependent`` coordinates
+only (by default the radial one); scalar fields may in addition depend linearly on
+other coordinates (a Q-lattice phase ``k x``, axions ``alpha x``) through explicit
+constant gradients.
 """
 
 import itertools
 
 import numpy as np
 
+from ._jet import Jet
 from ._series import Series
 
 __all__ = ["Geometry", "ScalarField", "tensor_sum"]
@@ -34,7 +41,7 @@ __all__ = ["Geometry", "ScalarField", "tensor_sum"]
 def _is_zero(x):
     # hot path of the sparse tensor bookkeeping: avoid numpy calls for the common types
     t = type(x)
-    if t is Series:
+    if t is Series or t is Jet:
         return False
     if t is int or t is float:
         return x == 0
@@ -63,19 +70,25 @@ def _mul(a, b):
     return a * b
 
 
-def _deriv(x):
-    if isinstance(x, Series):
-        return x.derivative()
-    return 0
+def partial(x, mu, radial):
+    """``d_mu x``: a :class:`Series` depends on the ``radial`` coordinate only, a value with a
+    ``partial`` method (:class:`~spectral_bulk.gravity.Jet`) on its own coordinates, anything
+    else (numbers, arrays) is a constant."""
+    if type(x) is Series or isinstance(x, Series):
+        return x.derivative() if mu == radial else 0
+    p = getattr(x, "partial", None)
+    return p(mu) if p is not None else 0
 
 
 class ScalarField:
-    """A scalar field: its value (a series in the radial offset) and extra gradients.
+    """A scalar field: its value (a series in the coordinate offsets) and extra gradients.
 
     Parameters
     ----------
-    value : Series or array
-        Radial profile (its series gives the radial derivatives).
+    value : Series, Jet or array
+        Profile (a :class:`Series` in the radial offset, or a
+        :class:`~spectral_bulk.gravity.Jet` in the dependent coordinates) whose
+        coefficients give the derivatives.
     gradient : dict of int -> float or array, optional
         Constant derivatives along other coordinates (e.g. ``{2: k}`` for a
         phase ``k x`` with ``x`` the coordinate of index 2).
@@ -86,14 +99,14 @@ class ScalarField:
         self.extra = dict(gradient or {})
 
     def grad(self, mu, radial):
-        if mu == radial:
-            return _deriv(self.value)
-        return self.extra.get(mu, 0)
+        d = partial(self.value, mu, radial)
+        e = self.extra.get(mu, 0)
+        if _is_zero(e):
+            return d
+        return e if _is_zero(d) else d + e
 
     def hess(self, mu, nu, radial):
-        if mu == radial and nu == radial:
-            return _deriv(_deriv(self.value))
-        return 0
+        return partial(partial(self.value, mu, radial), nu, radial)
 
 
 class Geometry:
@@ -107,11 +120,15 @@ class Geometry:
     dim : int
         Spacetime dimension ``D``.
     radial : int
-        Index of the coordinate the components depend on.
+        Index of the radial coordinate (the one :class:`Series` values expand in).
+    dependent : tuple of int, optional
+        Coordinates the components depend on (default ``(radial,)``); with more than
+        one, the components are :class:`~spectral_bulk.gravity.Jet` values in them.
     """
 
-    def __init__(self, metric, dim, radial):
+    def __init__(self, metric, dim, radial, dependent=None):
         self.dim, self.radial = int(dim), int(radial)
+        self.dependent = (self.radial,) if dependent is None else tuple(int(m) for m in dependent)
         self.g = {}
         for (m, n), v in metric.items():
             if _is_zero(v):
@@ -134,34 +151,33 @@ class Geometry:
     def inv(self, m, n):
         return self.inverse.get((m, n), 0)
 
-    @property
-    def dg(self):
-        """Radial derivatives of the metric components."""
-        if not hasattr(self, "_dg"):
-            self._dg = {k: _deriv(v) for k, v in self.g.items()}
-        return self._dg
-
-    def _d(self, mu, key):
-        return self.dg.get(key, 0) if mu == self.radial else 0
+    def dg(self, mu):
+        """``d_mu g_{ab}`` for every stored component (dict; zero unless ``mu`` is dependent)."""
+        cache = self.__dict__.setdefault("_dg", {})
+        if mu not in cache:
+            r = self.radial
+            cache[mu] = {k: partial(v, mu, r) for k, v in self.g.items()}
+        return cache[mu]
 
     @property
     def christoffel(self):
         """``Gamma^l_{m n}`` for ``m <= n`` (dict; zeros omitted)."""
         if self._gamma is None:
-            r = self.radial
-            # Gamma_{s m n} = (d_m g_{sn} + d_n g_{sm} - d_s g_{mn}) / 2 with only d_r non-zero:
-            # each non-zero d_r g_{ab} feeds (s, m, n) = (a, r, b), (a, b, r) and (r, a, b);
-            # terms are kept per key in the order of the formula
+            # Gamma_{s m n} = (d_m g_{sn} + d_n g_{sm} - d_s g_{mn}) / 2 with d_r non-zero for the
+            # dependent r only: each non-zero d_r g_{ab} feeds (s, m, n) = (a, r, b), (a, b, r)
+            # and (r, a, b), each in a slot of its own; terms are kept per key in the order of
+            # the formula
             parts = {}
-            for (a, b), d in self.dg.items():
-                if _is_zero(d):
-                    continue
-                if r <= b:
-                    parts.setdefault((a, r, b), [0, 0, 0])[0] = d
-                if b <= r:
-                    parts.setdefault((a, b, r), [0, 0, 0])[1] = d
-                if a <= b:
-                    parts.setdefault((r, a, b), [0, 0, 0])[2] = -1 * d
+            for r in self.dependent:
+                for (a, b), d in self.dg(r).items():
+                    if _is_zero(d):
+                        continue
+                    if r <= b:
+                        parts.setdefault((a, r, b), [0, 0, 0])[0] = d
+                    if b <= r:
+                        parts.setdefault((a, b, r), [0, 0, 0])[1] = d
+                    if a <= b:
+                        parts.setdefault((r, a, b), [0, 0, 0])[2] = -1 * d
             first = {}
             for key, terms in parts.items():
                 val = tensor_sum(terms)
@@ -201,16 +217,16 @@ class Geometry:
     def ricci(self):
         """``R_{mu nu}`` for ``mu <= nu`` (dict)."""
         if self._ricci is None:
-            D, r = self.dim, self.radial
+            D, r, dep = self.dim, self.radial, self.dependent
             rows = self._gamma_rows()
             trace = {}
             for s_ in range(D):
                 trace[s_] = tensor_sum(v for (l, s2, v) in rows[s_] if l == s2)
             ric = {}
             for m, n in itertools.combinations_with_replacement(range(D), 2):
-                terms = [_deriv(self.gamma(r, m, n))]
-                if n == r and not _is_zero(trace[m]):
-                    terms.append(-1 * _deriv(trace[m]))
+                terms = [partial(self.gamma(l, m, n), l, r) for l in dep]
+                if n in dep and not _is_zero(trace[m]):
+                    terms.append(-1 * partial(trace[m], n, r))
                 terms += [_mul(trace[s_], self.gamma(s_, m, n)) for s_ in range(D)
                           if not _is_zero(trace[s_])]
                 # - Gamma^l_{n s} Gamma^s_{m l}, over the non-zero first factors only
@@ -232,7 +248,7 @@ class Geometry:
         xi_up : dict mu -> series
         sym : dict (mu, nu) -> series, ``mu <= nu``
         """
-        D, r = self.dim, self.radial
+        D, r, dep = self.dim, self.radial, self.dependent
         xi_up = {}
         for m in range(D):
             terms = []
@@ -251,10 +267,12 @@ class Geometry:
         sym = {}
         for m, n in itertools.combinations_with_replacement(range(D), 2):
             terms = []
-            if m == r:
-                terms.append(0.5 * _deriv(xi_dn.get(n, 0)) if not _is_zero(_deriv(xi_dn.get(n, 0))) else 0)
-            if n == r:
-                terms.append(0.5 * _deriv(xi_dn.get(m, 0)) if not _is_zero(_deriv(xi_dn.get(m, 0))) else 0)
+            if m in dep:
+                d = partial(xi_dn.get(n, 0), m, r)
+                terms.append(0 if _is_zero(d) else 0.5 * d)
+            if n in dep:
+                d = partial(xi_dn.get(m, 0), n, r)
+                terms.append(0 if _is_zero(d) else 0.5 * d)
             for l in range(D):
                 t = _mul(self.gamma(l, m, n), xi_dn.get(l, 0))
                 if not _is_zero(t):

@@ -1,0 +1,199 @@
+"""Jets (truncated Taylor polynomials in several coordinates) and the evaluator on them.
+
+References:
+* Taylor coefficients of exp, log, powers, sin, cos, tanh in closed form: common practice
+  (e.g. "Handbook of Mathematical Functions", Dover 1965, chapters 4 and 15).
+* AdS4 is maximally symmetric, ``R_mn = -3 g_mn`` for unit radius: common practice (e.g.
+  "Spacetime and Geometry", Addison-Wesley 2004, chapter 3); a change of coordinates that
+  mixes the radial and a boundary direction must keep it.
+* ``z^Delta`` solves ``(box - m^2) phi = 0`` in Poincare AdS4 with ``m^2 = Delta (Delta - 3)``:
+  common practice (e.g. "Gauge/Gravity Duality", Cambridge 2015, chapter 5).
+* The linear-axion black brane ``ds^2 = -f dt^2 + dr^2/f + r^2 (dx^2 + dy^2)``,
+  ``f = r^2 - alpha^2/2 - m0/r``, axions ``alpha x``, ``alpha y``: "A simple holographic model
+  of momentum relaxation", arXiv:1311.5157, an exact solution of the equations our evaluator
+  implements (V = -6, massless scalars with canonical kinetic terms).
+"""
+
+import math
+
+import numpy as np
+import pytest
+
+from spectral_bulk.gravity import (Geometry, Jet, MatterContent, PrecisionError, ScalarField, Series,
+                                   coordinate_jets, einstein_deturck, jet_from_derivatives)
+from spectral_bulk.models import BulkModel
+
+X0 = np.array([0.3, 0.55, 0.8])
+Y0 = np.array([0.2, -0.4, 1.1])
+
+
+def _jets(order=3):
+    return coordinate_jets([X0, Y0], (1, 2), order)
+
+
+def _check(jet, coef):
+    """``coef(a, b)`` the closed-form coefficient of ``dx^a dy^b``."""
+    for a in range(jet.order):
+        for b in range(jet.order - a):
+            np.testing.assert_allclose(jet.coefficient((a, b)), coef(a, b), rtol=1e-13, atol=1e-14)
+
+
+def test_elementary_functions_against_closed_form_coefficients():
+    x, y = _jets(4)
+    # exp(x + 2y): d^a_x d^b_y = 2^b exp(x + 2y)
+    _check(np.exp(x + 2 * y), lambda a, b: 2**b * np.exp(X0 + 2 * Y0) / (math.factorial(a) * math.factorial(b)))
+    # log(x (y + 2)) = log x + log(y + 2) has no mixed terms; d^a log x / a! = (-1)^(a-1)/(a x^a)
+    def log_coef(a, b):
+        if a == 0 and b == 0:
+            return np.log(X0 * (Y0 + 2))
+        if b == 0:
+            return (-1.0) ** (a + 1) / (a * X0**a)
+        if a == 0:
+            return (-1.0) ** (b + 1) / (b * (Y0 + 2) ** b)
+        return 0 * X0
+
+    _check(np.log(x * (y + 2)), log_coef)
+    # (x + y + 1)^r: d^a_x d^b_y = r (r-1) ... (r-n+1) (x+y+1)^(r-n), n = a + b
+    r = 2.5
+    _check((x + y + 1) ** r,
+           lambda a, b: math.prod(r - i for i in range(a + b)) * (X0 + Y0 + 1) ** (r - a - b)
+           / (math.factorial(a) * math.factorial(b)))
+    _check(1 / (x + y + 1), lambda a, b: math.prod(-1 - i for i in range(a + b)) * (X0 + Y0 + 1) ** (-1 - a - b)
+           / (math.factorial(a) * math.factorial(b)))
+    _check(np.sqrt(x + 2), lambda a, b: (b == 0) * math.prod(0.5 - i for i in range(a)) * (X0 + 2) ** (0.5 - a)
+           / math.factorial(a))
+    # sin(x - y): d^a_x d^b_y = (-1)^b sin(x - y + (a + b) pi/2)
+    _check(np.sin(x - y), lambda a, b: (-1) ** b * np.sin(X0 - Y0 + (a + b) * np.pi / 2)
+           / (math.factorial(a) * math.factorial(b)))
+    _check(np.cos(2 * x), lambda a, b: (b == 0) * 2**a * np.cos(2 * X0 + a * np.pi / 2) / math.factorial(a))
+    # tanh: tanh' = 1 - t^2, tanh'' = -2 t (1 - t^2), tanh''' = (1 - t^2)(6 t^2 - 2)
+    t = np.tanh(X0)
+    d = [t, 1 - t * t, -2 * t * (1 - t * t), (1 - t * t) * (6 * t * t - 2)]
+    _check(np.tanh(x), lambda a, b: (b == 0) * d[a] / math.factorial(a))
+    _check(np.cosh(y) ** 2 - np.sinh(y) ** 2, lambda a, b: 1.0 * (a == 0 and b == 0))
+
+
+def test_partial_derivatives_and_precision():
+    x, y = _jets(3)
+    f = x * x * y
+    fx, fy = f.partial(1), f.partial(2)
+    assert fx.order == fy.order == 2
+    np.testing.assert_allclose(fx.value, 2 * X0 * Y0)
+    np.testing.assert_allclose(fy.value, X0 * X0)
+    np.testing.assert_allclose(fx.partial(2).value, 2 * X0)  # d_x d_y (x^2 y)
+    np.testing.assert_allclose(fx.partial(1).value, 2 * Y0)
+    assert f.partial(3) == 0  # not a variable of the jet
+    with pytest.raises(PrecisionError):
+        f.coefficient((3, 0))
+    with pytest.raises(PrecisionError):
+        fx.partial(1).partial(1)
+    with pytest.raises(TypeError, match="Series"):
+        x + Series(np.ones((3, 3)), 0)
+    # the jet of a field from its partial derivatives (values of x^2 y and its derivatives)
+    j = jet_from_derivatives({(0, 0): X0**2 * Y0, (1, 0): 2 * X0 * Y0, (0, 1): X0**2, (2, 0): 2 * Y0,
+                              (1, 1): 2 * X0, (0, 2): 0 * X0}, (1, 2))
+    np.testing.assert_allclose(j.c, f.c, rtol=1e-15, atol=1e-15)
+    with pytest.raises(ValueError, match="needed"):
+        jet_from_derivatives({(0, 0): X0}, (1, 2))
+
+
+def test_complex_step_passes_through_jets():
+    # the engine linearises by complex steps: d/dh Im f(x + i h)/h at h -> 0 is f'(x)
+    h = 1e-30
+    x, y = coordinate_jets([X0 + 1j * h, Y0], (1, 2), 3)
+    f = np.exp(x) * y / (1 + x * x)
+    g = np.exp(X0) * Y0 / (1 + X0**2)
+    np.testing.assert_allclose(f.value.imag / h, g * (1 - 2 * X0 / (1 + X0**2)), rtol=1e-13)
+
+
+def _mixed_coordinates(R, X, a=0.3, b=0.2, k=1.7):
+    """``r = R (1 + b cos kX)``, ``x = X + a sin(kX)/k`` and the Jacobian entries."""
+    c, s = np.cos(k * X), np.sin(k * X)
+    r = R * (1 + b * c)
+    return r, 1 + b * c, -R * b * k * s, 1 + a * c  # r, dr/dR, dr/dX, dx/dX
+
+
+def _ads4_metric(R, X):
+    # Poincare AdS4, ds^2 = (-dt^2 + dr^2 + dx^2 + dy^2)/r^2 (r is the usual z), coordinates (t, R, X, y)
+    r, rR, rX, xX = _mixed_coordinates(R, X)
+    w = 1 / (r * r)
+    return {(0, 0): -1 * w, (1, 1): rR * rR * w, (1, 2): rR * rX * w, (2, 2): (rX * rX + xX * xX) * w,
+            (3, 3): w}, r
+
+
+def test_ads4_in_coordinates_mixing_radius_and_boundary_direction():
+    R, X = coordinate_jets([np.array([0.4, 0.9, 1.6]), np.array([0.1, 1.3, 2.9])], (1, 2), 3)
+    g, _ = _ads4_metric(R, X)
+    geo = Geometry(g, 4, radial=1, dependent=(1, 2))
+    ric = geo.ricci
+    for m in range(4):
+        for n in range(m, 4):
+            lhs = ric.get((m, n), 0)
+            lhs = lhs.value if isinstance(lhs, Jet) else np.zeros(3)
+            ref = g[(m, n)].value if (m, n) in g else np.zeros(3)
+            np.testing.assert_allclose(lhs, -3 * ref, rtol=1e-12, atol=1e-12)
+    # the same geometry through the Einstein evaluator: pure gravity, V = -6
+    model = BulkModel(lambda phi: -6 + 0 * phi, scalars=("phi",))
+    out = einstein_deturck(g, None, model, MatterContent([0 * R]), radial=1, dim=4, dependent=(1, 2))
+    for key, e in out["E"].items():
+        np.testing.assert_allclose(e.value, 0, atol=1e-11)
+    np.testing.assert_allclose(out["scalar"][0].value, 0, atol=1e-12)
+
+
+@pytest.mark.parametrize("delta", [2.0, 1.5, 2.7])
+def test_box_of_a_power_of_the_radius(delta):
+    R, X = coordinate_jets([np.array([0.5, 1.2]), np.array([0.7, 2.0])], (1, 2), 3)
+    g, r = _ads4_metric(R, X)
+    phi = r**delta
+    box = Geometry(g, 4, radial=1, dependent=(1, 2)).box(ScalarField(phi))
+    np.testing.assert_allclose(box.value, delta * (delta - 3) * phi.value, rtol=1e-12)
+
+
+@pytest.mark.parametrize("alpha,m0", [(0.0, 1.3), (1.1, 0.8), (2.0, 2.5)])
+def test_linear_axion_brane_in_mixed_coordinates(alpha, m0):
+    R, X = coordinate_jets([np.array([1.4, 2.2, 3.5]), np.array([0.2, 1.9, 4.0])], (1, 2), 3)
+    r, rR, rX, xX = _mixed_coordinates(R, X)
+    f = r * r - alpha**2 / 2 - m0 / r
+    ir = 1 / f
+    g = {(0, 0): -1 * f, (1, 1): rR * rR * ir, (1, 2): rR * rX * ir,
+         (2, 2): rX * rX * ir + r * r * xX * xX, (3, 3): r * r}
+    x = X + 0.3 * np.sin(1.7 * X) / 1.7  # the boundary coordinate of the solution
+    # psi_1 = alpha x (a field of (R, X) here) and psi_2 = alpha y (a constant gradient)
+    model = BulkModel(lambda p: -6 + 0 * p, scalars=("p",))
+    out = einstein_deturck(g, None, model, MatterContent([alpha * x], axions=[{3: alpha}]), radial=1,
+                           dim=4, dependent=(1, 2))
+    scale = np.abs(r.value) ** 2
+    for key, e in out["E"].items():
+        np.testing.assert_allclose(e.value / scale, 0, atol=1e-12)
+    np.testing.assert_allclose(out["scalar"][0].value / scale, 0, atol=1e-12)
+    # and the equations do see a wrong mass: m0 -> m0 + 0.1 violates them
+    f2 = r * r - alpha**2 / 2 - (m0 + 0.1) / r
+    g[(0, 0)] = -1 * f2
+    bad = einstein_deturck(g, None, model, MatterContent([alpha * x], axions=[{3: alpha}]), radial=1,
+                           dim=4, dependent=(1, 2))
+    assert max(float(np.abs(e.value / scale).max()) for e in bad["E"].values()) > 1e-3
+
+
+def test_one_coordinate_jets_agree_with_series():
+    # a diagonal radial metric through both types (the series route is what the branes use)
+    z0 = np.array([0.3, 0.6, 0.85])
+    (zj,) = coordinate_jets([z0], (1,), 3)
+    zs = Series(np.stack([z0, np.ones(3), np.zeros(3)]), 0)
+    outs = []
+    for z in (zj, zs):
+        f = 1 - z**3
+        g = {(0, 0): -1 * f * np.exp(-z * z) / (z * z), (1, 1): 1 / (f * z * z), (2, 2): np.cosh(z) / (z * z),
+             (3, 3): 1 / (z * z * np.cosh(z))}
+        ric = Geometry(g, 4, radial=1, dependent=(1,)).ricci
+        outs.append({k: (v.value if isinstance(v, Jet) else v.coefficient(0)) for k, v in ric.items()})
+    assert outs[0].keys() == outs[1].keys()
+    for k in outs[0]:
+        np.testing.assert_allclose(outs[0][k], outs[1][k], rtol=1e-13)
+
+
+def test_maxwell_needs_a_radial_potential():
+    R, X = coordinate_jets([np.array([0.5]), np.array([0.1])], (1, 2), 3)
+    g, _ = _ads4_metric(R, X)
+    model = BulkModel(lambda phi: -6 + 0 * phi, scalars=("phi",), gauge_coupling=lambda phi: 1 + 0 * phi)
+    with pytest.raises(NotImplementedError, match="Maxwell"):
+        einstein_deturck(g, None, model, MatterContent([0 * R], at=R), radial=1, dim=4, dependent=(1, 2))
