@@ -104,13 +104,19 @@ _UNARY = {
     np.reciprocal: lambda a: (1 / a, -1 / (a * a)),
 }
 
-_BINARY = {
-    np.add: lambda x, y: x + y if isinstance(x, Dual) else y + x,
-    np.subtract: lambda x, y: x - y if isinstance(x, Dual) else (-y) + x,
-    np.multiply: lambda x, y: x * y if isinstance(x, Dual) else y * x,
-    np.true_divide: lambda x, y: x / y if isinstance(x, Dual) else y.__rtruediv__(x),
-    np.power: lambda x, y: x**y if isinstance(x, Dual) else y.__rpow__(x),
-}
+def binary_ufuncs(cls):
+    """The binary numpy ufuncs of a number type ``cls`` as its operators, whichever operand
+    is of type ``cls`` (for ``__array_ufunc__``)."""
+    return {
+        np.add: lambda x, y: x + y if isinstance(x, cls) else y + x,
+        np.subtract: lambda x, y: x - y if isinstance(x, cls) else (-y) + x,
+        np.multiply: lambda x, y: x * y if isinstance(x, cls) else y * x,
+        np.true_divide: lambda x, y: x / y if isinstance(x, cls) else y.__rtruediv__(x),
+        np.power: lambda x, y: x**y if isinstance(x, cls) else y.__rpow__(x),
+    }
+
+
+_BINARY = binary_ufuncs(Dual)
 
 
 def derivative(fn, x):

@@ -27,6 +27,7 @@ import math
 
 import numpy as np
 
+from ._dual import binary_ufuncs
 from ._series import PrecisionError, Series
 
 __all__ = ["Jet", "coordinate_jets", "jet_from_derivatives"]
@@ -299,13 +300,7 @@ _DIRECT = {
     np.tanh: lambda x: (np.exp(2 * x) - 1) / (np.exp(2 * x) + 1),
 }
 
-_BINARY = {
-    np.add: lambda x, y: x + y if isinstance(x, Jet) else y + x,
-    np.subtract: lambda x, y: x - y if isinstance(x, Jet) else (-y) + x,
-    np.multiply: lambda x, y: x * y if isinstance(x, Jet) else y * x,
-    np.true_divide: lambda x, y: x / y if isinstance(x, Jet) else y.__rtruediv__(x),
-    np.power: lambda x, y: x**y if isinstance(x, Jet) else y.__rpow__(x),
-}
+_BINARY = binary_ufuncs(Jet)
 
 
 def coordinate_jets(points, axes, order=3):
