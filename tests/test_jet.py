@@ -174,6 +174,18 @@ def test_linear_axion_brane_in_mixed_coordinates(alpha, m0):
     assert max(float(np.abs(e.value / scale).max()) for e in bad["E"].values()) > 1e-3
 
 
+def test_deturck_vector_against_a_constant_reference_is_minus_box_of_the_coordinates():
+    # with a reference of constant components (no Christoffel symbols), xi^mu = g^ab Gamma^mu_ab
+    # = -box x^mu: the harmonic-coordinate identity (common practice)
+    R, X = coordinate_jets([np.array([0.5, 1.2]), np.array([0.7, 2.0])], (1, 2), 3)
+    g, _ = _ads4_metric(R, X)
+    geo = Geometry(g, 4, radial=1, dependent=(1, 2))
+    xi_up, _ = geo.deturck(Geometry({(0, 0): -1.0, (1, 1): 1.0, (2, 2): 1.0, (3, 3): 1.0}, 4, 1, (1, 2)))
+    for mu, coord in ((1, R), (2, X)):
+        np.testing.assert_allclose(xi_up[mu].value, -geo.box(ScalarField(coord)).value, rtol=1e-12)
+    assert 0 not in xi_up and 3 not in xi_up  # t and y are harmonic here
+
+
 def test_one_coordinate_jets_agree_with_series():
     # a diagonal radial metric through both types (the series route is what the branes use)
     z0 = np.array([0.3, 0.6, 0.85])
