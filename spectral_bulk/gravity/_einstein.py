@@ -60,7 +60,7 @@ def _covector(field, D, radial):
 
 
 def einstein_deturck(metric, reference, model, matter, radial=1, dim=None, dependent=None):
-    """Evaluate the equations of motion for a metric depending on one coordinate.
+    """Evaluate the equations of motion for a metric depending on one coordinate (or several).
 
     Parameters
     ----------
