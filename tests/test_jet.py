@@ -21,6 +21,7 @@ import pytest
 
 from spectral_bulk.gravity import (Geometry, Jet, MatterContent, PrecisionError, ScalarField, Series,
                                    coordinate_jets, einstein_deturck, jet_from_derivatives)
+from spectral_bulk.exceptions import ConvergenceWarning
 from spectral_bulk.models import BulkModel
 
 X0 = np.array([0.3, 0.55, 0.8])
@@ -201,6 +202,49 @@ def test_one_coordinate_jets_agree_with_series():
     assert outs[0].keys() == outs[1].keys()
     for k in outs[0]:
         np.testing.assert_allclose(outs[0][k], outs[1][k], rtol=1e-13)
+
+
+def test_probe_scalar_in_ads4_solved_on_a_two_dimensional_grid():
+    # a nonlinear probe scalar in AdS4 written in coordinates mixing r and x, solved by the engine
+    # on a Chebyshev x Fourier grid with the equation from the evaluator: V = -6 + m^2 phi^2/2 +
+    # G phi^4/4 with the quartic force cancelled by a source made of the exact solution,
+    # phi = r^Delta (common practice, see the module notes), so Newton needs several steps
+    import spectral_bulk as sb
+
+    delta, quartic, k = 2.7, 0.5, 1.7
+    m2 = delta * (delta - 3)
+    model = BulkModel(lambda phi: -6 + m2 * phi**2 / 2 + quartic * phi**4 / 4, scalars=("phi",))
+
+    def exact(R, X):
+        return (R * (1 + 0.2 * np.cos(k * X))) ** delta
+
+    def equations(c, f, p):
+        R, X = coordinate_jets([c.R, c.X], (1, 2), 3)
+        phi = jet_from_derivatives({(0, 0): f.phi, (1, 0): f.phi_R, (0, 1): f.phi_X, (2, 0): f.phi_RR,
+                                    (1, 1): f.phi_RX, (0, 2): f.phi_XX}, (1, 2))
+        g, _ = _ads4_metric(R, X)
+        out = einstein_deturck(g, None, model, MatterContent([phi]), radial=1, dim=4, dependent=(1, 2))
+        return out["scalar"][0].value + quartic * exact(c.R, c.X) ** 3
+
+    def wall(c, f, p):
+        return [f.phi - exact(c.R, c.X)]
+
+    errors = {}
+    for n_r, n_x in ((10, 12), (16, 24)):
+        grid = sb.TensorGrid(sb.Chebyshev(n_r, (0.5, 1.5), "R"), sb.Fourier(n_x, 2 * np.pi / k, "X"))
+        problem = sb.Problem(grid, ["phi"], equations, {"R=0.5": wall, "R=1.5": wall})
+        if n_r == 10:  # too coarse for 1e-11: the certificate says so
+            with pytest.warns(ConvergenceWarning, match="spectral tail"):
+                res = sb.solve(problem, lambda R, X: R**2, tol=1e-11, linear_solver="gmres")
+            assert res.status == 5
+        else:
+            res = sb.solve(problem, lambda R, X: R**2, tol=1e-11, linear_solver="gmres")
+            assert res.converged, res.message
+            assert res.iterations >= 3  # the quartic term makes it a genuine Newton solve
+        R, X = (grid.coords[n].reshape(grid.shape) for n in ("R", "X"))
+        errors[n_r] = float(np.abs(res.fields["phi"] - exact(R, X)).max())
+    assert errors[16] < 1e-12
+    assert errors[10] > 100 * errors[16]  # spectral convergence
 
 
 def test_maxwell_needs_a_radial_potential():
