@@ -253,3 +253,79 @@ def test_maxwell_needs_a_radial_potential():
     model = BulkModel(lambda phi: -6 + 0 * phi, scalars=("phi",), gauge_coupling=lambda phi: 1 + 0 * phi)
     with pytest.raises(NotImplementedError, match="Maxwell"):
         einstein_deturck(g, None, model, MatterContent([0 * R], at=R), radial=1, dim=4, dependent=(1, 2))
+
+
+def _known(jet):
+    """Every known coefficient ``(alpha, value)`` of a two-variable jet (Laurent in the first)."""
+    for e in range(jet.val, jet.order):
+        for b in range(jet.order - e):
+            yield (e, b), jet.coefficient((e, b))
+
+
+def test_laurent_jets_against_closed_forms():
+    # at a zero of the first variable: 1/(d (2 + d + y)) = d^-1/(2 + y) - 1/(2 + y)^2 + d/(2 + y)^3 ...
+    Y = np.array([0.2, -0.5])
+    z, y = coordinate_jets([np.zeros(2), Y], (1, 2), 5)
+    s = 1 / (z * (2 + z + y))
+    assert s.val == -1 and s.order == 3  # O(|d|^5) divided by d^2 as a Laurent series
+    # the coefficient of d^e y^b of 1/(d (c + d)) with c = 2 + Y0 + y: sum over the y-expansion
+    # of (-1)^(e+1) c^-(e+2), i.e. (-1)^(e+1) binom(-(e+2), b) (2 + Y0)^(-(e+2)-b)
+    for (e, b), v in _known(s):
+        ref = (-1.0) ** (e + 1) * math.comb(e + 1 + b, b) * (-1.0) ** b * (2 + Y) ** (-(e + 2) - b)
+        np.testing.assert_allclose(v, ref, rtol=1e-13)
+    # d/dz of the pole and of a product with a zero
+    ds = s.partial(1)
+    assert ds.val == -2
+    np.testing.assert_allclose(ds.coefficient((-2, 0)), -1 / (2 + Y), rtol=1e-13)
+    np.testing.assert_allclose(ds.coefficient((-1, 0)), 0 * Y, atol=1e-15)  # d/dd of the constant term
+    np.testing.assert_allclose(ds.coefficient((0, 0)), 1 / (2 + Y) ** 3, rtol=1e-13)
+    np.testing.assert_allclose((s * z).value, 1 / (2 + Y), rtol=1e-13)
+    np.testing.assert_allclose(np.sqrt(z * z * (1 + y)).coefficient((1, 1)), 0.5 / np.sqrt(1 + Y), rtol=1e-13)
+    with pytest.raises(PrecisionError, match="pole"):
+        np.exp(s)
+    np.testing.assert_allclose(np.exp(s - s + y).value, np.exp(Y), rtol=1e-14)  # a removable pole
+    with pytest.raises(PrecisionError):
+        s.coefficient((3, 0))
+
+
+def _brane_metric(z, x_of_X=None):
+    """AdS-Schwarzschild, f = 1 - z^3 (the planar brane with T = 3/(4 pi); common practice)."""
+    f = 1 - z**3
+    iz2 = 1 / (z * z)
+    g = {(0, 0): -1 * f * iz2, (1, 1): iz2 / f, (3, 3): iz2}
+    g[(2, 2)] = iz2 if x_of_X is None else x_of_X * x_of_X * iz2
+    return g
+
+
+def test_horizon_laurent_expansion_agrees_with_series():
+    # one variable: the Laurent expansions at the horizon z = 1 from Jet and from Series
+    zs = Series(np.stack([np.ones(2), np.ones(2)] + [np.zeros(2)] * 4), 0)
+    (zj,) = coordinate_jets([np.ones(2)], (1,), 6)
+    rs = Geometry(_brane_metric(zs), 4, radial=1).ricci
+    rj = Geometry(_brane_metric(zj), 4, radial=1, dependent=(1,)).ricci
+    assert rs.keys() == rj.keys()
+    for key in rs:
+        assert rs[key].val == rj[key].normalized().val
+        for e in range(rs[key].val, min(rs[key].prec, rj[key].order)):
+            np.testing.assert_allclose(rj[key].coefficient((e,)), rs[key].coefficient(e), rtol=1e-13, atol=1e-13)
+
+
+def test_brane_horizon_in_an_x_dependent_coordinate():
+    # AdS-Schwarzschild with x = X + a sin(kX)/k: at the horizon the Einstein equations hold as
+    # Laurent series in z - 1 and Taylor series in X - X0, every known coefficient
+    a, k = 0.4, 1.3
+    z, X = coordinate_jets([np.ones(3), np.array([0.1, 1.0, 2.2])], (1, 2), 6)
+    g = _brane_metric(z, 1 + a * np.cos(k * X))
+    model = BulkModel(lambda phi: -6 + 0 * phi, scalars=("phi",))
+    out = einstein_deturck(g, None, model, MatterContent([0 * z]), radial=1, dim=4, dependent=(1, 2))
+    assert min(e.normalized().val for e in out["E"].values()) >= -1  # poles cancel to first order
+    checked = 0
+    for key, e in out["E"].items():
+        for alpha, v in _known(e):
+            np.testing.assert_allclose(v, 0, atol=1e-11)
+            checked += 1
+    assert checked > 20
+    # a wrong blackening factor is seen at the horizon
+    g[(0, 0)] = -1 * (1 - z**3) * (1 + 0.01 * (z - 1)) / (z * z)
+    bad = einstein_deturck(g, None, model, MatterContent([0 * z]), radial=1, dim=4, dependent=(1, 2))
+    assert max(float(np.abs(v).max()) for e in bad["E"].values() for _, v in _known(e)) > 1e-3

@@ -2,7 +2,7 @@
 
 ``Series``           truncated Laurent series with precision tracking (numpy-compatible)
 ``taylor``           a series from a value and its derivatives
-``Jet``              truncated Taylor polynomial in several coordinates (regular points)
+``Jet``              truncated Taylor polynomial in several coordinates (Laurent in the radial one)
 ``coordinate_jets``, ``jet_from_derivatives``  jets of coordinates and of fields
 ``Dual``             dual numbers for automatic derivatives of model functions
 ``Geometry``         Christoffel symbols, Ricci tensor, DeTurck vector (radial or several coordinates)

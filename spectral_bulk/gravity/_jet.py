@@ -7,9 +7,11 @@ several-coordinate sibling of :class:`~spectral_bulk.gravity.Series` for regular
 metric components that depend on the radial coordinate and on a boundary direction (a
 periodic lattice) are jets known to order 3 at each collocation point, built from a field's
 value and its partial derivatives there; the curvature computed from them by
-:class:`~spectral_bulk.gravity.Geometry` is then exact at order 0.  Jets have no
-valuation: they describe regular points only (a horizon or the boundary, where a
-series in the radial offset has poles, needs a Laurent variant).
+:class:`~spectral_bulk.gravity.Geometry` is then exact at order 0.  The first variable (the
+radial coordinate) may carry a valuation, as in a Laurent series: at a horizon the metric
+degenerates and the same formulas give the Laurent expansion of the field equations in the
+radial offset (Taylor in the others), whose leading coefficients are the regularity
+conditions.
 
 Precision is tracked by total degree, like ``O(|d|^n)`` in a computer-algebra system: a
 coefficient not determined by the inputs is never returned.  Each variable is labelled
@@ -55,37 +57,55 @@ def _product_plan(k, order):
 
 
 class Jet:
-    """Truncated Taylor polynomial in the offsets of the coordinates ``axes``.
+    """Truncated Taylor (Laurent in the first variable) polynomial in the offsets of ``axes``.
+
+    ``d_1^val sum_{i + |alpha| < n} c[i, alpha] d_1^i d_rest^alpha``: the first variable
+    (the radial coordinate, by convention) may carry a valuation ``val`` (a pole or a zero at
+    the expansion point, as at a horizon); ``order = val + n`` is the total degree of the
+    first unknown monomials.
 
     Parameters
     ----------
-    coeffs : array_like, shape ``(order,) * len(axes) + batch``
-        ``coeffs[alpha]`` multiplies ``d^alpha``; entries of total degree ``>= order`` are
-        ignored (and kept zero).
+    coeffs : array_like, shape ``(n,) * len(axes) + batch``
+        ``coeffs[i, alpha]`` multiplies ``d_1^(val + i) d_rest^alpha``; entries with
+        ``i + |alpha| >= n`` are ignored (and kept zero).
     axes : tuple of int
         Spacetime index of the coordinate of each variable.
     order : int
-        Total degree of the first unknown terms.
+        Total degree of the first unknown monomials.
+    val : int
+        Exponent of the first variable in ``coeffs[0]`` (0 at regular points).
     """
 
     __array_priority__ = 1000
-    __slots__ = ("c", "axes", "order")
+    __slots__ = ("c", "axes", "val")
 
-    def __init__(self, coeffs, axes, order):
+    def __init__(self, coeffs, axes, order, val=0):
         c = np.array(coeffs)  # a copy: entries beyond the order are zeroed below
-        k, order = len(axes), int(order)
-        if order < 1 or c.shape[:k] != (order,) * k:
-            raise ValueError(f"coefficients of shape {c.shape} do not hold order {order} in {k} variables")
-        for a in itertools.product(range(order), repeat=k):
-            if sum(a) >= order:
+        k, n = len(axes), int(order) - int(val)
+        if n < 1 or c.shape[:k] != (n,) * k:
+            raise ValueError(f"coefficients of shape {c.shape} do not hold order {order} "
+                             f"(valuation {val}) in {k} variables")
+        for a in itertools.product(range(n), repeat=k):
+            if sum(a) >= n:
                 c[a] = 0
-        self.c, self.axes, self.order = c, tuple(int(m) for m in axes), order
+        self.c, self.axes, self.val = c, tuple(int(m) for m in axes), int(val)
 
     @classmethod
-    def _raw(cls, c, axes, order):
+    def _raw(cls, c, axes, val=0):
         j = object.__new__(cls)
-        j.c, j.axes, j.order = c, axes, order
+        j.c, j.axes, j.val = c, axes, val
         return j
+
+    @property
+    def n(self):
+        """Number of known total degrees above the valuation."""
+        return self.c.shape[0]
+
+    @property
+    def order(self):
+        """Total degree of the first unknown monomials (``O(|d|^order)``)."""
+        return self.val + self.c.shape[0]
 
     @property
     def batch_shape(self):
@@ -93,32 +113,67 @@ class Jet:
 
     @property
     def value(self):
-        """The constant term (the function's value at the points)."""
-        return self.c[(0,) * len(self.axes)]
+        """The coefficient of ``d^0`` (the function's value at regular points)."""
+        return self.coefficient((0,) * len(self.axes))
 
     def coefficient(self, alpha):
-        """Coefficient of ``d^alpha`` (error at or beyond the known order)."""
+        """Coefficient of ``d^alpha`` (zero below the valuation, error at or beyond the order)."""
         alpha = tuple(int(a) for a in alpha)
         if len(alpha) != len(self.axes):
             raise ValueError(f"multi-index {alpha} for {len(self.axes)} variables")
         if sum(alpha) >= self.order:
             raise PrecisionError(f"coefficient {alpha} unknown: jet known to total degree {self.order - 1}")
-        return self.c[alpha]
+        i = alpha[0] - self.val
+        if i < 0:
+            return np.zeros(self.batch_shape, dtype=self.c.dtype)
+        return self.c[(i,) + alpha[1:]]
+
+    def normalized(self):
+        """Drop leading coefficients of the first variable that vanish everywhere (raise ``val``)."""
+        out = self
+        while out.n > 1 and not np.count_nonzero(out.c[0]):
+            m = out.n - 1
+            out = Jet._raw(out.c[(slice(1, None),) + (slice(0, m),) * (len(self.axes) - 1)], self.axes,
+                           out.val + 1)
+        return out
+
+    def _shifted(self, delta):
+        """The same jet written with valuation ``val - delta`` (``delta >= 0``; more coefficients)."""
+        if delta == 0:
+            return self
+        k, n = len(self.axes), self.n
+        c = np.zeros((n + delta,) * k + self.batch_shape, dtype=self.c.dtype)
+        c[(slice(delta, None),) + (slice(0, n),) * (k - 1)] = self.c
+        return Jet._raw(c, self.axes, self.val - delta)
+
+    def _regular(self, what):
+        """The jet with valuation 0 (a zero at the point is kept as leading zeros)."""
+        s = self if self.val >= 0 else self.normalized()
+        if s.val < 0:
+            raise PrecisionError(f"{what} of a jet with a pole")
+        return s._shifted(s.val)
 
     def partial(self, mu):
         """``d/d x^mu`` (order drops by one; zero when ``mu`` is not a variable)."""
         if mu not in self.axes:
             return 0
-        i, k, m = self.axes.index(mu), len(self.axes), self.order - 1
+        i, k, m = self.axes.index(mu), len(self.axes), self.n - 1
+        if i == 0 and self.val != 0:
+            # d(d^v u) = d^(v-1) (v u + d du)
+            w = self.c * self.val
+            if m >= 1:
+                du = Jet._raw(self.c, self.axes).partial(mu)
+                w = w + du._shifted(1).c
+            return Jet._raw(w, self.axes, self.val - 1)
         if m < 1:
             raise PrecisionError("derivative of a jet with no known coefficient beyond the constant")
         sl = [slice(0, m)] * k
         sl[i] = slice(1, m + 1)
         w = np.arange(1, m + 1).reshape((1,) * i + (m,) + (1,) * (k - 1 - i) + (1,) * len(self.batch_shape))
-        return Jet._raw(self.c[tuple(sl)] * w, self.axes, m)
+        return Jet._raw(self.c[tuple(sl)] * w, self.axes, self.val)
 
     def __repr__(self):
-        return f"Jet(axes={self.axes}, order={self.order}, batch={self.batch_shape})"
+        return f"Jet(axes={self.axes}, val={self.val}, order={self.order}, batch={self.batch_shape})"
 
     # ------------------------------------------------------------- arithmetic
     def _other(self, o):
@@ -133,18 +188,18 @@ class Jet:
         return None
 
     def _const(self, o, m):
-        """A constant as a jet of order ``m``."""
+        """A constant as a regular jet of order ``m``."""
         o = np.asarray(o)
         c = np.zeros((m,) * len(self.axes) + np.broadcast_shapes(self.batch_shape, o.shape),
                      dtype=np.result_type(self.c, o))
         c[(0,) * len(self.axes)] = o
-        return Jet._raw(c, self.axes, m)
+        return Jet._raw(c, self.axes)
 
     def _cut(self, m):
         return self.c[(slice(0, m),) * len(self.axes)]
 
     def __neg__(self):
-        return Jet._raw(-self.c, self.axes, self.order)
+        return Jet._raw(-self.c, self.axes, self.val)
 
     def __pos__(self):
         return self
@@ -153,10 +208,13 @@ class Jet:
         other = self._other(o)
         if other is NotImplemented:
             return NotImplemented
-        if other is None:
-            other = self._const(o, self.order)
-        m = min(self.order, other.order)
-        return Jet._raw(self._cut(m) + other._cut(m), self.axes, m)
+        if other is None:  # a constant is exact: as many terms as this jet knows
+            other = self._const(o, max(self.order, 1))
+        v, p = min(self.val, other.val), min(self.order, other.order)
+        if p <= v:
+            raise PrecisionError("sum of jets with no known coefficient in common")
+        a, b = self._shifted(self.val - v), other._shifted(other.val - v)
+        return Jet._raw(a._cut(p - v) + b._cut(p - v), self.axes, v)
 
     __radd__ = __add__
 
@@ -171,28 +229,29 @@ class Jet:
         if other is NotImplemented:
             return NotImplemented
         if other is None:
-            return Jet._raw(self.c * np.asarray(o), self.axes, self.order)
-        m = min(self.order, other.order)
+            return Jet._raw(self.c * np.asarray(o), self.axes, self.val)
+        m = min(self.n, other.n)
         a, b = self._cut(m), other._cut(m)
         c = np.zeros(a.shape[:len(self.axes)] + np.broadcast_shapes(a.shape[len(self.axes):],
                                                                       b.shape[len(self.axes):]),
                      dtype=np.result_type(a, b))
         for x, y, z in _product_plan(len(self.axes), m):
             c[z] += a[x] * b[y]
-        return Jet._raw(c, self.axes, m)
+        return Jet._raw(c, self.axes, self.val + other.val)
 
     __rmul__ = __mul__
 
     def reciprocal(self):
-        """``1/self``; the constant term must not vanish."""
-        c0 = self.value
+        """``1/self``; after removing leading zeros the constant term must not vanish."""
+        s = self.normalized()
         with np.errstate(divide="raise", invalid="raise"):
             try:
-                inv = 1.0 / c0
+                inv = 1.0 / s.c[(0,) * len(self.axes)]
             except FloatingPointError:
-                raise ZeroDivisionError("jet division by a constant term that vanishes") from None
-        # 1/(c0 + t) = sum_k (-1)^k t^k / c0^(k+1)
-        return self._compose([(-1) ** k * inv ** (k + 1) for k in range(self.order)])
+                raise ZeroDivisionError("jet division by a leading coefficient that vanishes") from None
+        # 1/(c0 + t) = sum_k (-1)^k t^k / c0^(k+1), times d^(-val)
+        u = Jet._raw(s.c, s.axes)._compose([(-1) ** k * inv ** (k + 1) for k in range(s.n)])
+        return Jet._raw(u.c, s.axes, -s.val)
 
     def __truediv__(self, o):
         if isinstance(o, Jet):
@@ -200,7 +259,7 @@ class Jet:
         other = self._other(o)
         if other is NotImplemented:
             return NotImplemented
-        return Jet._raw(self.c / np.asarray(o), self.axes, self.order)
+        return Jet._raw(self.c / np.asarray(o), self.axes, self.val)
 
     def __rtruediv__(self, o):
         return self.reciprocal() * o
@@ -211,24 +270,30 @@ class Jet:
         if np.ndim(r) == 0 and float(np.real(r)).is_integer() and np.imag(r) == 0:
             n = int(np.real(r))
             if n == 0:
-                return self._const(np.ones(self.batch_shape, dtype=self.c.dtype), self.order)
+                return self._const(np.ones(self.batch_shape, dtype=self.c.dtype), max(self.order, 1))
             base = self if n > 0 else self.reciprocal()
             out = base
             for _ in range(abs(n) - 1):
                 out = out * base
             return out
-        return self._compose(_power_coef(r)(self.value, self.order))
+        s = self.normalized()
+        vr = s.val * float(r) if np.ndim(r) == 0 else None
+        if vr is None or vr != round(vr):
+            raise PrecisionError(f"non-integer power {r} of a jet with valuation {s.val}")
+        u = Jet._raw(s.c, s.axes)
+        u = u._compose(_power_coef(r)(u.c[(0,) * len(self.axes)], u.n))
+        return Jet._raw(u.c, s.axes, int(round(vr)))
 
     def __rpow__(self, base):
         return np.exp(self * np.log(base))
 
     def _compose(self, coef):
-        """``sum_k coef[k] t^k`` with ``t = self - c0`` (``coef[k] = f^(k)(c0)/k!``)."""
-        t = Jet._raw(self.c.copy(), self.axes, self.order)
+        """``sum_k coef[k] t^k`` with ``t = self - c0`` (a regular jet; ``coef[k] = f^(k)(c0)/k!``)."""
+        t = Jet._raw(self.c.copy(), self.axes)
         t.c[(0,) * len(self.axes)] = 0
-        out = self._const(coef[0], self.order)
+        out = self._const(coef[0], self.n)
         power = None
-        for k in range(1, self.order):
+        for k in range(1, self.n):
             power = t if power is None else power * t
             out = out + power * coef[k]
         return out
@@ -245,7 +310,10 @@ class Jet:
         rule = _TAYLOR.get(ufunc)
         if rule is None:
             return NotImplemented
-        return x._compose(rule(x.value, x.order))
+        u = x._regular(ufunc.__name__)
+        if ufunc is np.log and u.val == 0 and not np.all(u.c[(0,) * len(u.axes)]):
+            raise PrecisionError("log of a jet with a zero at the expansion point")
+        return u._compose(rule(u.c[(0,) * len(u.axes)], u.n))
 
 
 def _exp_coef(a, m):
@@ -285,7 +353,6 @@ def _sinh_cosh_coef(a, m, phase):
 _TAYLOR = {
     np.exp: _exp_coef,
     np.log: _log_coef,
-    np.sqrt: _power_coef(0.5),
     np.sin: lambda a, m: _sin_cos_coef(a, m, 0),
     np.cos: lambda a, m: _sin_cos_coef(a, m, 1),
     np.sinh: lambda a, m: _sinh_cosh_coef(a, m, 0),
@@ -296,6 +363,7 @@ _DIRECT = {
     np.negative: lambda x: -x,
     np.positive: lambda x: x,
     np.square: lambda x: x * x,
+    np.sqrt: lambda x: x**0.5,  # through the valuation: sqrt(d^2 u) = d sqrt(u)
     np.reciprocal: lambda x: x.reciprocal(),
     np.tanh: lambda x: (np.exp(2 * x) - 1) / (np.exp(2 * x) + 1),
 }
@@ -329,7 +397,7 @@ def coordinate_jets(points, axes, order=3):
             e = [0] * len(axes)
             e[i] = 1
             c[tuple(e)] = 1.0
-        out.append(Jet._raw(c, axes, order))
+        out.append(Jet._raw(c, axes))
     return out
 
 
@@ -359,5 +427,5 @@ def jet_from_derivatives(derivs, axes, order=3):
     c = np.zeros((order,) * len(axes) + arrs[0].shape, dtype=dt)
     for a, v in zip(idx, arrs):
         c[a] = v / math.prod(math.factorial(x) for x in a)
-    return Jet._raw(c, axes, order)
+    return Jet._raw(c, axes)
 
