@@ -3,8 +3,7 @@
 A :class:`Jet` represents ``sum_{|alpha| < order} c_alpha d^alpha + O(|d|^order)`` in the
 offsets ``d = (d_1, ..., d_k)`` of ``k`` coordinates from an expansion point, with the batch
 of points (and of complex-step perturbations) carried in the coefficients.  It is the
-several-coordinate sibling of :class:`~spectral_bulk.gravity.Series` for regular points:
-metric components that depend on the radial coordinate and on a boundary direction (a
+several-coordinate sibling of :class:`~spectral_bulk.gravity.Series`: metric components that depend on the radial coordinate and on a boundary direction (a
 periodic lattice) are jets known to order 3 at each collocation point, built from a field's
 value and its partial derivatives there; the curvature computed from them by
 :class:`~spectral_bulk.gravity.Geometry` is then exact at order 0.  The first variable (the
