@@ -185,3 +185,28 @@ def test_continuation_points_polish_with_their_bordered_factorisation():
     assert "BorderedInverse" in seen
     assert float(ds["err"].max()) < 1e-17 and float(ds["vs_fresh"].max()) < 1e-17
     assert all(getattr(s, "_jacobian_solver", None) is None for s in br.solutions)
+
+
+def test_brane_newton_result_keeps_the_extended_residual_of_its_state():
+    # the branes certify their Newton result with the extended-precision residual the refinement
+    # starts from (evaluated once): it must be that of the returned state, and refining from it
+    # must give what a fresh evaluation gives, bit for bit
+    from spectral_bulk.backgrounds import QLatticeBrane
+    from spectral_bulk.models import builtin
+
+    bg = QLatticeBrane(builtin("mass2"), n=18, n_max=18)
+    params = {"lam": 0.8, "k": 1.2}
+    pr = bg.problem(18)
+    res = bg._newton(pr, bg._trivial_guess(params), params)
+    assert res.converged
+    kept = res._extended_residual
+    assert kept.dtype == np.dtype(L)
+    assert np.array_equal(kept, pr.residual_extended(res.state, res.params))
+    a = polish(res)
+    res._extended_residual = None
+    b = polish(res)
+    assert a.residual_norms == b.residual_norms and np.array_equal(a.state, b.state)
+    # the wrapped solution does not carry it (nor the factorisation)
+    sol = bg.solve(**params)
+    assert sol.converged and getattr(sol, "_extended_residual", None) is None
+    assert getattr(sol, "_jacobian_solver", None) is None

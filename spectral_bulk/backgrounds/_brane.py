@@ -98,8 +98,10 @@ class BackgroundSolution(SolveResult):
         out.__dict__.update(res.__dict__)
         out.background = background
         out.observables = background.observables(res)
-        # the factorisation kept for the refinement of the observables is not needed any more
+        # the factorisation and residual kept for the refinement of the observables are not
+        # needed any more
         res._jacobian_solver = out._jacobian_solver = None
+        res._extended_residual = out._extended_residual = None
         out.certificate_failures = certificate_failures(background, out.observables)
         out.certified = bool(res.converged and not out.certificate_failures)
         return out
@@ -481,11 +483,28 @@ class Brane:
 
     def _newton(self, pr, guess, params):
         from ..newton._newton import _newton, initial_state
+        from ..newton._polish import extended_precision_available
 
         u0 = initial_state(pr, guess)
+        kept = {}
+
+        def extended_residual(u):
+            # the refinement of the observables starts from this very residual: evaluate it once,
+            # in extended precision, and certify the Newton result with it rounded to double
+            try:
+                r = pr.residual_extended(u, params)
+            except (NotImplementedError, TypeError, ValueError, ArithmeticError):
+                return None  # the refinement will say so; the double residual certifies
+            kept["state"], kept["residual"] = u, r
+            return r.astype(np.float64)
+
+        extended = self.extended and extended_precision_available()
         # the last factorisation serves the extended-precision refinement of the observables
-        return _newton(pr, u0, params, NewtonOptions(tol=self.tol, tail_tol=self.tail_tol,
-                                                     max_iter=40).validated(), keep_factor=self.extended)
+        res = _newton(pr, u0, params, NewtonOptions(tol=self.tol, tail_tol=self.tail_tol, max_iter=40).validated(),
+                      keep_factor=self.extended, final_residual=extended_residual if extended else None)
+        if kept and res.state is kept["state"]:
+            res._extended_residual = kept["residual"]
+        return res
 
     def _homotopy(self, start, target):
         """Continue from the start (or the trivial background) to the target, one parameter at a time."""

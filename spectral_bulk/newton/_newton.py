@@ -264,12 +264,15 @@ def solve(problem, guess, *, params=None, tol=None, max_iter=None, damping=None,
 solve.__doc__ = solve.__doc__.replace("{status_docs}", _status_docs().replace("\n", "\n    "))
 
 
-def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False):
+def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False, final_residual=None):
     """The Newton iteration behind :func:`solve`.
 
     ``keep_factor``: a converged result keeps its last dense factorisation as
     ``_jacobian_solver`` (for :func:`~spectral_bulk.newton.polish`; the caller drops it when
     done, so that stored results do not hold n^2 arrays).
+    ``final_residual``: ``state -> F`` (double) for the certificate of a returned state whose
+    residual is not at hand, in place of the workspace's (a caller that evaluates it anyway,
+    say in extended precision, keeps that evaluation); ``None`` from it falls back.
     """
     tol = opts.tol
     info = dict(nfev=0, njev=0, residual_norms=[], update_norms=[], damping=[], tol=tol)
@@ -286,7 +289,9 @@ def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False):
         tails = ws.tails(state)
         tail = dict(zip(problem.fields, map(float, tails)))
         if F is None:
-            F = ws.residual(state)
+            F = final_residual(state) if final_residual is not None else None
+            if F is None:
+                F = ws.residual(state)
             info["nfev"] += 1
         r = ws.backward_error(F, A, state) if A is not None and np.isfinite(F).all() else np.nan
         if status == 0:

@@ -111,13 +111,21 @@ def polish(result, steps=4, dtype=np.longdouble):
     ------
     NotImplementedError
         For grids other than 1-D affine Chebyshev.
+
+    Notes
+    -----
+    A result may carry the extended residual of its state (``_extended_residual``: the
+    branes certify their Newton result with it, rounded to double); refinement then
+    starts from it instead of evaluating it again.
     """
     if not extended_precision_available(dtype):
         return None
     problem, params = result.problem, result.params
     solve = _jacobian_solve(result)
     u = np.asarray(result.state, dtype=dtype)
-    r = problem.residual_extended(u, params, dtype)
+    r = getattr(result, "_extended_residual", None)  # evaluated by the caller at this state
+    if r is None or r.dtype != np.dtype(dtype):
+        r = problem.residual_extended(u, params, dtype)
     norms = [float(np.abs(r).max())]
     best = (norms[0], u)
     for _ in range(int(steps)):
