@@ -86,8 +86,12 @@ def test_partial_derivatives_and_precision():
     assert f.partial(3) == 0  # not a variable of the jet
     with pytest.raises(PrecisionError):
         f.coefficient((3, 0))
+    third = fx.partial(1).partial(1)  # a third derivative of data known to second order
+    assert third.order == 0
     with pytest.raises(PrecisionError):
-        fx.partial(1).partial(1)
+        third.value
+    with pytest.raises(PrecisionError):
+        np.exp(fx.partial(2).partial(2))  # nothing known: no function of it either
     with pytest.raises(TypeError, match="Series"):
         x + Series(np.ones((3, 3)), 0)
     # the jet of a field from its partial derivatives (values of x^2 y and its derivatives)
@@ -329,3 +333,54 @@ def test_brane_horizon_in_an_x_dependent_coordinate():
     g[(0, 0)] = -1 * (1 - z**3) * (1 + 0.01 * (z - 1)) / (z * z)
     bad = einstein_deturck(g, None, model, MatterContent([0 * z]), radial=1, dim=4, dependent=(1, 2))
     assert max(float(np.abs(v).max()) for e in bad["E"].values() for _, v in _known(e)) > 1e-3
+
+
+def test_qlattice_brane_as_two_x_dependent_real_scalars():
+    # The Q-lattice scalar rho e^{i k x} is the pair phi_1 = rho cos kx, phi_2 = rho sin kx of real
+    # scalars with G = identity and V(sqrt(phi_1^2 + phi_2^2)) (common practice). A certified
+    # one-coordinate brane (itself checked against shooting in test_branes.py) must then solve
+    # the two-coordinate equations with x-dependent scalars, at interior points and, as Laurent
+    # series in z - 1, at the horizon; the z-x equation holds by a cancellation between the two.
+    from spectral_bulk.backgrounds import QLatticeBrane
+    from spectral_bulk.models import builtin
+
+    bg = QLatticeBrane(builtin("mass2"), n=24, n_max=24)
+    k_over_t = 1.3
+    sol = bg.solve(lam=1.0, k=k_over_t)
+    assert sol.certified
+    kk = k_over_t * bg.T
+    pair = BulkModel(lambda p1, p2: -6 - p1 * p1 - p2 * p2, scalars=("p1", "p2"))
+    z = sol.grid.axes[0].points
+    x0 = np.linspace(0.0, 2.0, 5)
+
+    def residuals(idx, kx):
+        zz, xx = np.meshgrid(z[idx], x0, indexing="ij")
+        Z, X = coordinate_jets([zz, xx], (1, 2), 6)
+        fs = {}
+        for name in bg.fields:
+            v, d1, d2 = (np.asarray(sol.derivative(name, (m,)))[idx] if m else sol.fields[name][idx]
+                         for m in range(3))
+            b = np.broadcast_to
+            fs[name] = jet_from_derivatives({(0, 0): b(v[:, None], zz.shape), (1, 0): b(d1[:, None], zz.shape),
+                                             (0, 1): 0 * zz, (2, 0): b(d2[:, None], zz.shape),
+                                             (1, 1): 0 * zz, (0, 2): 0 * zz}, (1, 2))
+        f = 1 - Z**3
+        g = {(0, 0): -1 * (f * fs["A"]) / (Z * Z), (1, 1): fs["A"] / (Z * Z * f), (2, 2): fs["B"] / (Z * Z),
+             (3, 3): fs["C"] / (Z * Z)}
+        rho = Z * fs["psi"]
+        out = einstein_deturck(g, None, pair, MatterContent([rho * np.cos(kx * X), rho * np.sin(kx * X)]),
+                               radial=1, dim=4, dependent=(1, 2))
+        return list(out["E"].values()) + list(out["scalar"])
+
+    interior = np.arange(1, z.size - 1)
+    worst = max(float(np.abs(e.value).max()) for e in residuals(interior, kk))
+    assert worst < 1e-9
+    assert max(float(np.abs(e.value).max()) for e in residuals(interior, 1.02 * kk)) > 1e-4  # the k it was solved at
+    # the horizon: every coefficient the data determine vanishes; the constant terms are among
+    # them (the regularity rows of the one-coordinate brane), and a wrong k is seen there too
+    horizon = np.array([z.size - 1])
+    rows = residuals(horizon, kk)
+    assert all(e.order >= 1 for e in rows)
+    assert max(float(np.abs(v).max()) for e in rows for _, v in _known(e)) < 1e-9
+    bad = residuals(horizon, 1.02 * kk)
+    assert max(float(np.abs(v).max()) for e in bad for _, v in _known(e)) > 1e-5

@@ -147,29 +147,39 @@ class Jet:
 
     def _regular(self, what):
         """The jet with valuation 0 (a zero at the point is kept as leading zeros)."""
+        if self.n == 0:
+            raise PrecisionError(f"{what} of a jet with no known coefficient")
         s = self if self.val >= 0 else self.normalized()
         if s.val < 0:
             raise PrecisionError(f"{what} of a jet with a pole")
         return s._shifted(s.val)
 
+    def _dcoeffs(self, i):
+        """Coefficients of the derivative of the regular part along variable ``i`` (``n - 1``)."""
+        k, m = len(self.axes), self.n - 1
+        sl = [slice(0, m)] * k
+        sl[i] = slice(1, m + 1)
+        w = np.arange(1, m + 1).reshape((1,) * i + (m,) + (1,) * (k - 1 - i) + (1,) * len(self.batch_shape))
+        return self.c[tuple(sl)] * w
+
     def partial(self, mu):
         """``d/d x^mu`` (order drops by one; zero when ``mu`` is not a variable)."""
         if mu not in self.axes:
             return 0
-        i, k, m = self.axes.index(mu), len(self.axes), self.n - 1
-        if i == 0 and self.val != 0:
+        i, m = self.axes.index(mu), self.n - 1
+        if i == 0 and (self.val != 0 or m < 1):
             # d(d^v u) = d^(v-1) (v u + d du)
             w = self.c * self.val
             if m >= 1:
-                du = Jet._raw(self.c, self.axes).partial(mu)
-                w = w + du._shifted(1).c
-            return Jet._raw(w, self.axes, self.val - 1)
-        if m < 1:
-            raise PrecisionError("derivative of a jet with no known coefficient beyond the constant")
-        sl = [slice(0, m)] * k
-        sl[i] = slice(1, m + 1)
-        w = np.arange(1, m + 1).reshape((1,) * i + (m,) + (1,) * (k - 1 - i) + (1,) * len(self.batch_shape))
-        return Jet._raw(self.c[tuple(sl)] * w, self.axes, self.val)
+                w = w + Jet._raw(self._dcoeffs(0), self.axes)._shifted(1).c
+            return Jet._raw(w, self.axes, self.val - 1).normalized()
+        if m < 1:  # nothing is known beyond the leading terms
+            return self._unknown(self.order - 1)
+        return Jet._raw(self._dcoeffs(i), self.axes, self.val).normalized()
+
+    def _unknown(self, order):
+        """A jet with no known coefficient, ``O(|d|^order)``."""
+        return Jet._raw(np.zeros((0,) * len(self.axes) + self.batch_shape, dtype=self.c.dtype), self.axes, order)
 
     def __repr__(self):
         return f"Jet(axes={self.axes}, val={self.val}, order={self.order}, batch={self.batch_shape})"
@@ -211,9 +221,11 @@ class Jet:
             other = self._const(o, max(self.order, 1))
         v, p = min(self.val, other.val), min(self.order, other.order)
         if p <= v:
-            raise PrecisionError("sum of jets with no known coefficient in common")
+            return self._unknown(p)
         a, b = self._shifted(self.val - v), other._shifted(other.val - v)
-        return Jet._raw(a._cut(p - v) + b._cut(p - v), self.axes, v)
+        # cancelled leading terms (a zero at the point, poles of a sum of field equations) would
+        # cost precision in every later product: drop them, as Series does
+        return Jet._raw(a._cut(p - v) + b._cut(p - v), self.axes, v).normalized()
 
     __radd__ = __add__
 
@@ -228,7 +240,10 @@ class Jet:
         if other is NotImplemented:
             return NotImplemented
         if other is None:
-            return Jet._raw(self.c * np.asarray(o), self.axes, self.val)
+            out = Jet._raw(self.c * np.asarray(o), self.axes, self.val)
+            t = type(o)
+            # a finite non-zero number keeps the zero pattern
+            return out if (t is float or t is int) and o != 0 and o - o == 0 else out.normalized()
         m = min(self.n, other.n)
         a, b = self._cut(m), other._cut(m)
         c = np.zeros(a.shape[:len(self.axes)] + np.broadcast_shapes(a.shape[len(self.axes):],
@@ -236,13 +251,15 @@ class Jet:
                      dtype=np.result_type(a, b))
         for x, y, z in _product_plan(len(self.axes), m):
             c[z] += a[x] * b[y]
-        return Jet._raw(c, self.axes, self.val + other.val)
+        return Jet._raw(c, self.axes, self.val + other.val).normalized()
 
     __rmul__ = __mul__
 
     def reciprocal(self):
         """``1/self``; after removing leading zeros the constant term must not vanish."""
         s = self.normalized()
+        if s.n == 0:
+            raise PrecisionError("reciprocal of a jet with no known coefficient")
         with np.errstate(divide="raise", invalid="raise"):
             try:
                 inv = 1.0 / s.c[(0,) * len(self.axes)]
@@ -276,6 +293,8 @@ class Jet:
                 out = out * base
             return out
         s = self.normalized()
+        if s.n == 0:
+            raise PrecisionError("power of a jet with no known coefficient")
         vr = s.val * float(r) if np.ndim(r) == 0 else None
         if vr is None or vr != round(vr):
             raise PrecisionError(f"non-integer power {r} of a jet with valuation {s.val}")
