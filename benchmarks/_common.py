@@ -342,12 +342,13 @@ class Clock:
     def time_newton_core(self, pointwise="pointwise", factorisation="linear_algebra",
                          assembly="linear_algebra"):
         """Time the Newton engine's pieces: ``Problem.linearize / param_derivative / residual /
-        linearize_with_param`` and the 1-D workspace's callbacks (``_rows``) in ``pointwise``,
+        linearize_with_param / residual_extended`` (every evaluation of the equations, the
+        refinement's included) and the 1-D workspace's callbacks (``_rows``) in ``pointwise``,
         ``DenseSolver`` (construction = LU, ``solve``, ``slogdet``) and the 1-D workspace's fused
         ``step`` (assembly, LU and correction in one) and ``trial`` (the simplified correction,
         callbacks excluded) in ``factorisation``, and the dense assembly (``assemble_dense``
         wherever it is looked up, ``_bordered_dense``) in ``assembly``."""
-        for attr in ("linearize", "param_derivative", "residual", "linearize_with_param"):
+        for attr in ("linearize", "param_derivative", "residual", "linearize_with_param", "residual_extended"):
             self.patch(Problem, attr, self.timer(pointwise))
         # the callbacks of the 1-D workspace, once per evaluation (its linearize and trial
         # wrap them with kernels; timing linearize too would count one evaluation twice)
