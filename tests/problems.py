@@ -4,8 +4,20 @@ Each entry gives the residual, the boundary conditions, the exact solution and
 its source.  Residuals are written complex-safe.
 """
 
+import importlib.util
+import os
+
 import numpy as np
 from scipy.optimize import brentq
+
+
+def load_reference(name):
+    """A module of ``tests/reference/`` (independent references: scipy only, never the package)."""
+    path = os.path.join(os.path.dirname(os.path.abspath(__file__)), "reference", name + ".py")
+    spec = importlib.util.spec_from_file_location(name, path)
+    mod = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(mod)
+    return mod
 
 
 def dirichlet_zero(c, f, p):

@@ -10,7 +10,6 @@ References
 * Linear-axion brane: "A simple holographic model of momentum relaxation", arXiv:1311.5157.
 """
 
-import importlib.util
 import json
 import math
 import os
@@ -24,18 +23,12 @@ from spectral_bulk.exceptions import ConvergenceWarning, ProblemDefinitionError,
 from spectral_bulk.models import BulkModel, QLatticeModel, builtin
 from spectral_bulk.newton import extended_precision_available
 
+from .problems import load_reference
+
 HERE = os.path.dirname(os.path.abspath(__file__))
 
 
-def _load_reference():
-    spec = importlib.util.spec_from_file_location(
-        "brane_reference", os.path.join(HERE, "reference", "brane_reference.py"))
-    mod = importlib.util.module_from_spec(spec)
-    spec.loader.exec_module(mod)
-    return mod
-
-
-REF = _load_reference()
+REF = load_reference("brane_reference")
 with open(os.path.join(HERE, "reference", "brane_values.json")) as fh:
     VALUES = json.load(fh)
 

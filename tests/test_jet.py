@@ -384,3 +384,60 @@ def test_qlattice_brane_as_two_x_dependent_real_scalars():
     assert max(float(np.abs(v).max()) for e in rows for _, v in _known(e)) < 1e-9
     bad = residuals(horizon, 1.02 * kk)
     assert max(float(np.abs(v).max()) for e in bad for _, v in _known(e)) > 1e-5
+
+
+def test_qlattice_brane_solved_as_a_pde_with_x_dependent_sources():
+    # The whole two-coordinate route of a lattice brane: fields A, B, C of (z, x) and the two real
+    # scalar components psi_i (phi_i = z psi_i) with the sources lambda cos kx, lambda sin kx at
+    # the boundary, the evaluator's equations on jets at interior points, its Laurent horizon rows
+    # at z = 1, solved by the engine on a Chebyshev x Fourier grid (GMRES path). The Q-lattice
+    # solution is x-independent in the metric; s/T^2 and rho_h must agree with the independent
+    # shooting solution (tests/reference/brane_reference.py, scipy only).
+    import spectral_bulk as sb
+
+    from .problems import load_reference
+
+    lam_over_t, k_over_t = 1.0, 1.3
+    temp = 3 / (4 * np.pi)  # tortoise gauge, z_h = 1
+    kb, lb = k_over_t * temp, lam_over_t * temp
+    pair = BulkModel(lambda p1, p2: -6 - p1 * p1 - p2 * p2, scalars=("p1", "p2"))
+    fields = ["A", "B", "C", "p1", "p2"]
+    names = {(0, 0): "", (1, 0): "_z", (0, 1): "_x", (2, 0): "_zz", (1, 1): "_zx", (0, 2): "_xx"}
+
+    def rows(z, x, f):
+        Z, X = coordinate_jets([z, x], (1, 2), 6)
+        fs = {n: jet_from_derivatives({a: getattr(f, n + s) for a, s in names.items()}, (1, 2)) for n in fields}
+        blackening, iz2 = 1 - Z**3, 1 / (Z * Z)
+        g = {(0, 0): -1 * (blackening * fs["A"]) * iz2, (1, 1): fs["A"] * iz2 / blackening,
+             (2, 2): fs["B"] * iz2, (3, 3): fs["C"] * iz2}
+        out = einstein_deturck(g, None, pair, MatterContent([Z * fs["p1"], Z * fs["p2"]]), radial=1, dim=4,
+                               dependent=(1, 2))
+        return [e.value for e in [out["E"][(0, 0)], out["E"][(2, 2)], out["E"][(3, 3)]] + out["scalar"]]
+
+    def equations(c, f, p):
+        return rows(np.where((c.z <= 0) | (c.z >= 1), 0.5, c.z), c.x, f)  # the ends carry their own rows
+
+    def boundary(c, f, p):
+        return [f.A - 1, f.B - 1, f.C - 1, f.p1 - lb * np.cos(kb * c.x), f.p2 - lb * np.sin(kb * c.x)]
+
+    def horizon(c, f, p):  # the constant Laurent coefficients at z = 1, as for the ODE branes
+        return rows(c.z, c.x, f)
+
+    def guess(z, x):
+        return {"A": 1 + 0 * z, "B": 1 + 0 * z, "C": 1 + 0 * z, "p1": lb * (1 - z) * np.cos(kb * x),
+                "p2": lb * (1 - z) * np.sin(kb * x)}
+
+    grid = sb.TensorGrid(sb.Chebyshev(24, (0.0, 1.0), "z"), sb.Fourier(6, 2 * np.pi / kb, "x"))
+    res = sb.solve(sb.Problem(grid, fields, equations, {"z=0": boundary, "z=1": horizon}), guess,
+                   tol=1e-10, linear_solver="gmres")
+    assert res.converged, res.message
+    B, C = res.fields["B"][-1], res.fields["C"][-1]
+    rho_h = np.hypot(res.fields["p1"][-1], res.fields["p2"][-1])
+    s_over_t2 = 4 * np.pi * np.sqrt(B * C) / temp**2
+    shooting = load_reference("brane_reference")
+    ref = shooting.qlattice_brane_shooting(*shooting.quadratic_potential(), lam=lam_over_t, k=k_over_t, rtol=1e-11)
+    assert res.linear_solver == "gmres"
+    np.testing.assert_allclose(s_over_t2, ref["s"], rtol=1e-10)  # reference error estimate 2.5e-12
+    np.testing.assert_allclose(rho_h, ref["rho_h"], rtol=1e-8)
+    for name in ("A", "B", "C"):  # the lattice of a Q-lattice leaves the metric homogeneous
+        assert np.ptp(res.fields[name], axis=1).max() < 1e-12

@@ -11,7 +11,6 @@ References
   share no equations (different gauges, horizon vs IR cut-off).
 """
 
-import importlib.util
 import json
 import math
 import os
@@ -24,17 +23,12 @@ from scipy.integrate import quad
 from spectral_bulk.backgrounds import DomainWall, QLatticeBrane, QLatticeWall
 from spectral_bulk.models import BulkModel, builtin
 
+from .problems import load_reference
+
 HERE = os.path.dirname(os.path.abspath(__file__))
 
 
-def _load(name):
-    spec = importlib.util.spec_from_file_location(name, os.path.join(HERE, "reference", name + ".py"))
-    mod = importlib.util.module_from_spec(spec)
-    spec.loader.exec_module(mod)
-    return mod
-
-
-REF = _load("wall_reference")
+REF = load_reference("wall_reference")
 with open(os.path.join(HERE, "reference", "wall_values.json")) as fh:
     VALUES = {round(v["lam"], 6): v for v in json.load(fh)["values"]}
 
