@@ -12,6 +12,10 @@ References:
   ``f = r^2 - alpha^2/2 - m0/r``, axions ``alpha x``, ``alpha y``: "A simple holographic model
   of momentum relaxation", arXiv:1311.5157, an exact solution of the equations our evaluator
   implements (V = -6, massless scalars with canonical kinetic terms).
+* Planar AdS-Schwarzschild, ``f = 1 - z^3``: common practice.
+* The Q-lattice brane: the shooting solver of ``tests/reference/brane_reference.py`` (scipy
+  only, independent of the package), and the one-coordinate branes that test_branes.py checks
+  against it.
 """
 
 import math
