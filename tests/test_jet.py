@@ -445,3 +445,18 @@ def test_qlattice_brane_solved_as_a_pde_with_x_dependent_sources():
     np.testing.assert_allclose(rho_h, ref["rho_h"], rtol=1e-8)
     for name in ("A", "B", "C"):  # the lattice of a Q-lattice leaves the metric homogeneous
         assert np.ptp(res.fields[name], axis=1).max() < 1e-12
+
+
+def test_dependent_coordinates_come_from_the_jets_and_are_checked():
+    # leaving out a coordinate the jets depend on would drop its derivatives from the curvature
+    R, X = coordinate_jets([np.array([0.4, 0.9]), np.array([0.1, 1.3])], (1, 2), 3)
+    g, _ = _ads4_metric(R, X)
+    assert Geometry(g, 4, radial=1).dependent == (1, 2)
+    with pytest.raises(ValueError, match=r"coordinate\(s\) \[2\]"):
+        Geometry(g, 4, radial=1, dependent=(1,))
+    model = BulkModel(lambda phi: -6 + 0 * phi, scalars=("phi",))
+    out = einstein_deturck(g, None, model, MatterContent([0 * R]), radial=1, dim=4)  # inferred
+    for e in out["E"].values():
+        np.testing.assert_allclose(e.value, 0, atol=1e-11)
+    with pytest.raises(ValueError, match="not in dependent"):
+        einstein_deturck(g, None, model, MatterContent([0 * R]), radial=1, dim=4, dependent=(1,))

@@ -28,7 +28,7 @@ import itertools
 
 import numpy as np
 
-from ._geometry import Geometry, ScalarField, _is_zero, _mul, tensor_sum
+from ._geometry import Geometry, ScalarField, _is_zero, _mul, dependent_coordinates, tensor_sum
 
 __all__ = ["MatterContent", "einstein_deturck"]
 
@@ -76,9 +76,9 @@ def einstein_deturck(metric, reference, model, matter, radial=1, dim=None, depen
     dim : int, optional
         Spacetime dimension (default ``model.d + 1``).
     dependent : tuple of int, optional
-        Coordinates the fields depend on (default ``(radial,)``, values are
-        :class:`Series`); with several, metric and scalars are :class:`Jet` values in
-        them (the Maxwell field must then be absent).
+        Coordinates the fields depend on: by default those of the :class:`Jet` values
+        among them, else ``(radial,)`` (values are :class:`Series`); with several, the
+        Maxwell field must be absent.
 
     Returns
     -------
@@ -88,7 +88,9 @@ def einstein_deturck(metric, reference, model, matter, radial=1, dim=None, depen
         the DeTurck norm ``xi^mu xi_mu``, ``"geometry"``: the :class:`Geometry`.
     """
     D = dim or model.d + 1
-    if matter.at is not None and dependent is not None and tuple(dependent) != (radial,):
+    dependent = dependent_coordinates(list(metric.values()) + list(matter.scalars)
+                                      + ([matter.at] if matter.at is not None else []), radial, dependent)
+    if matter.at is not None and dependent != (radial,):
         raise NotImplementedError("the Maxwell equation is implemented for A_t depending on the "
                                   "radial coordinate only")
     geo = Geometry(metric, D, radial, dependent)

@@ -80,6 +80,29 @@ def partial(x, mu, radial):
     return p(mu) if p is not None else 0
 
 
+def dependent_coordinates(values, radial, dependent=None):
+    """The coordinates ``values`` depend on: ``dependent`` when given (checked), else those of
+    their :class:`~spectral_bulk.gravity.Jet` values, else ``(radial,)``.
+
+    Raises
+    ------
+    ValueError
+        A jet depends on a coordinate outside ``dependent`` (its derivatives along it would
+        be dropped from the curvature).
+    """
+    axes = set()
+    for v in values:
+        if type(v) is Jet:
+            axes.update(v.axes)
+    if dependent is None:
+        return tuple(sorted(axes)) if axes else (int(radial),)
+    dependent = tuple(int(m) for m in dependent)
+    missing = sorted(axes - set(dependent))
+    if missing:
+        raise ValueError(f"values depend on coordinate(s) {missing} that are not in dependent={dependent}")
+    return dependent
+
+
 class ScalarField:
     """A scalar field: its value (a series in the coordinate offsets) and extra gradients.
 
@@ -122,13 +145,14 @@ class Geometry:
     radial : int
         Index of the radial coordinate (the one :class:`Series` values expand in).
     dependent : tuple of int, optional
-        Coordinates the components depend on (default ``(radial,)``); with more than
-        one, the components are :class:`~spectral_bulk.gravity.Jet` values in them.
+        Coordinates the components depend on: by default those of the
+        :class:`~spectral_bulk.gravity.Jet` components, else ``(radial,)``; a jet in a
+        coordinate outside an explicit ``dependent`` is an error.
     """
 
     def __init__(self, metric, dim, radial, dependent=None):
         self.dim, self.radial = int(dim), int(radial)
-        self.dependent = (self.radial,) if dependent is None else tuple(int(m) for m in dependent)
+        self.dependent = dependent_coordinates(metric.values(), self.radial, dependent)
         self.g = {}
         for (m, n), v in metric.items():
             if _is_zero(v):
