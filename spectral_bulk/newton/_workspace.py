@@ -219,10 +219,16 @@ class DenseWorkspace(GenericWorkspace):
         nf, n = c["nf"], c["n"]
         rows = c["rowbuf"]  # consumed by the caller: F and A are fresh arrays
         out = pr.equations(c["coords"], c["f"], self.p)
-        if type(out) is list and len(out) == nf and all(getattr(r, "shape", None) == c["target"] for r in out):
+        target = c["target"]
+        ok = type(out) is list and len(out) == nf
+        if ok:  # the common case: one array of the batch shape per field, copied as checked
             for i in range(nf):
-                rows[i] = out[i]
-        else:
+                r = out[i]
+                if getattr(r, "shape", None) != target:
+                    ok = False
+                    break
+                rows[i] = r
+        if not ok:
             for i, e in enumerate(pr._normalise(out, c["eq_what"], n, c["batch"])):
                 if e is None:
                     raise ProblemDefinitionError(
@@ -232,10 +238,17 @@ class DenseWorkspace(GenericWorkspace):
                 rows[i] = e
         for fun, cb, fns, sl, what, target in c["faces"]:
             bc = fun(cb, fns, self.p)
-            if not (type(bc) is list and len(bc) == nf
-                    and all(b is None or getattr(b, "shape", None) == target for b in bc)):
-                bc = pr._normalise(bc, what, target[1], c["batch"])
-            for i, b in enumerate(bc):
+            if type(bc) is list and len(bc) == nf:
+                for i in range(nf):
+                    b = bc[i]
+                    if b is None:
+                        continue
+                    if getattr(b, "shape", None) != target:
+                        break
+                    rows[i, :, sl] = b
+                else:
+                    continue
+            for i, b in enumerate(pr._normalise(bc, what, target[1], c["batch"])):
                 if b is not None:
                     rows[i, :, sl] = b
         return rows
