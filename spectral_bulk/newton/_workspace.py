@@ -247,7 +247,8 @@ class DenseWorkspace(GenericWorkspace):
                         break
                     rows[i, :, sl] = b
                 else:
-                    continue
+                    continue  # every row checked and written: next face
+            # anything else (scalars, wrong shapes or counts) is normalised, or named in an error
             for i, b in enumerate(pr._normalise(bc, what, target[1], c["batch"])):
                 if b is not None:
                     rows[i, :, sl] = b
