@@ -296,13 +296,17 @@ def test_laurent_jets_against_closed_forms():
         s.coefficient((3, 0))
 
 
-def _brane_metric(z, x_of_X=None):
-    """AdS-Schwarzschild, f = 1 - z^3 (the planar brane with T = 3/(4 pi); common practice)."""
+def _tortoise_metric(z, A=1, B=1, C=1):
+    """``(-f A dt^2 + A dz^2/f + B dx^2 + C dy^2)/z^2``, ``f = 1 - z^3``: the branes' ansatz."""
     f = 1 - z**3
     iz2 = 1 / (z * z)
-    g = {(0, 0): -1 * f * iz2, (1, 1): iz2 / f, (3, 3): iz2}
-    g[(2, 2)] = iz2 if x_of_X is None else x_of_X * x_of_X * iz2
-    return g
+    return {(0, 0): -1 * (f * A) * iz2, (1, 1): A * iz2 / f, (2, 2): B * iz2, (3, 3): C * iz2}
+
+
+def _brane_metric(z, x_of_X=None):
+    """AdS-Schwarzschild (the planar brane with T = 3/(4 pi); common practice), with
+    ``x = x(X)`` when given."""
+    return _tortoise_metric(z, B=1 if x_of_X is None else x_of_X * x_of_X)
 
 
 def test_horizon_laurent_expansion_agrees_with_series():
@@ -368,9 +372,7 @@ def test_qlattice_brane_as_two_x_dependent_real_scalars():
             fs[name] = jet_from_derivatives({(0, 0): b(v[:, None], zz.shape), (1, 0): b(d1[:, None], zz.shape),
                                              (0, 1): 0 * zz, (2, 0): b(d2[:, None], zz.shape),
                                              (1, 1): 0 * zz, (0, 2): 0 * zz}, (1, 2))
-        f = 1 - Z**3
-        g = {(0, 0): -1 * (f * fs["A"]) / (Z * Z), (1, 1): fs["A"] / (Z * Z * f), (2, 2): fs["B"] / (Z * Z),
-             (3, 3): fs["C"] / (Z * Z)}
+        g = _tortoise_metric(Z, fs["A"], fs["B"], fs["C"])
         rho = Z * fs["psi"]
         out = einstein_deturck(g, None, pair, MatterContent([rho * np.cos(kx * X), rho * np.sin(kx * X)]),
                                radial=1, dim=4, dependent=(1, 2))
@@ -411,9 +413,7 @@ def test_qlattice_brane_solved_as_a_pde_with_x_dependent_sources():
     def rows(z, x, f):
         Z, X = coordinate_jets([z, x], (1, 2), 6)
         fs = {n: jet_from_derivatives({a: getattr(f, n + s) for a, s in names.items()}, (1, 2)) for n in fields}
-        blackening, iz2 = 1 - Z**3, 1 / (Z * Z)
-        g = {(0, 0): -1 * (blackening * fs["A"]) * iz2, (1, 1): fs["A"] * iz2 / blackening,
-             (2, 2): fs["B"] * iz2, (3, 3): fs["C"] * iz2}
+        g = _tortoise_metric(Z, fs["A"], fs["B"], fs["C"])
         out = einstein_deturck(g, None, pair, MatterContent([Z * fs["p1"], Z * fs["p2"]]), radial=1, dim=4,
                                dependent=(1, 2))
         return [e.value for e in [out["E"][(0, 0)], out["E"][(2, 2)], out["E"][(3, 3)]] + out["scalar"]]
