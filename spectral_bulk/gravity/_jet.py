@@ -29,7 +29,7 @@ import math
 import numpy as np
 
 from ._dual import binary_ufuncs
-from ._series import PrecisionError, Series
+from ._series import PrecisionError, Series, keeps_zero_pattern
 
 __all__ = ["Jet", "coordinate_jets", "jet_from_derivatives"]
 
@@ -241,9 +241,7 @@ class Jet:
             return NotImplemented
         if other is None:
             out = Jet._raw(self.c * np.asarray(o), self.axes, self.val)
-            t = type(o)
-            # a finite non-zero number keeps the zero pattern
-            return out if (t is float or t is int) and o != 0 and o - o == 0 else out.normalized()
+            return out if keeps_zero_pattern(o) else out.normalized()
         m = min(self.n, other.n)
         a, b = self._cut(m), other._cut(m)
         c = np.zeros(a.shape[:len(self.axes)] + np.broadcast_shapes(a.shape[len(self.axes):],

@@ -59,6 +59,13 @@ def _cauchy_plan(ma, mb, m):
     return plan
 
 
+def keeps_zero_pattern(x):
+    """True for a finite non-zero Python number: multiplying by it leaves every zero where it is
+    (nothing to normalise afterwards)."""
+    t = type(x)
+    return (t is float or t is int) and x != 0 and x - x == 0
+
+
 def _new(c, val):
     """``Series(c, val)`` for an ndarray ``c`` of ``ndim >= 1`` and an int ``val`` (the hot
     paths; skips the constructor's conversions)."""
@@ -200,10 +207,7 @@ class Series:
         return (-self) + other
 
     def __mul__(self, other):
-        t = type(other)
-        if (t is float or t is int) and other != 0 and other - other == 0:
-            # a finite non-zero number keeps every coefficient's zero pattern: nothing to
-            # normalise (half the products of a curvature evaluation are of this kind)
+        if keeps_zero_pattern(other):  # half the products of a curvature evaluation
             return _new(self.c * other, self.val)
         if not isinstance(other, Series):
             other = _as_array(other)
