@@ -267,8 +267,9 @@ def test_status_residual_stagnation(monkeypatch, workspace):
     assert res.status == 6
 
 
-@pytest.mark.parametrize("workspace", ["auto", "generic"])
-def test_status_linear_solver_failure(monkeypatch, workspace):
+@pytest.mark.parametrize("workspace, small", [("auto", True), ("auto", False), ("generic", True)])
+def test_status_linear_solver_failure(monkeypatch, workspace, small):
+    import spectral_bulk.newton._workspace as W
     from spectral_bulk.newton._workspace import DenseWorkspace, GenericWorkspace
 
     class Broken:
@@ -289,7 +290,18 @@ def test_status_linear_solver_failure(monkeypatch, workspace):
         monkeypatch.setattr(cls, "factor", lambda *a, **k: Broken())
     from spectral_bulk.newton._kernels import dispatchers
 
-    monkeypatch.setattr(dispatchers(), "newton_update", broken_update)
+    kernels = dispatchers()
+    prepare = kernels.prepare_dense
+
+    def broken_small_step(A, DT, R, F, u, scales, J, w, rscale, piv, dx, min_ratio):  # fused form
+        finite, rnorm, anorm = prepare(A, DT, R, F, u, scales, J, w, rscale, True)
+        dx[:] = np.nan
+        return finite, rnorm, anorm, 0, 1.0, np.nan
+
+    monkeypatch.setattr(kernels, "newton_update", broken_update)
+    monkeypatch.setattr(kernels, "small_step", broken_small_step)
+    if not small:  # the LAPACK path of the dense step
+        monkeypatch.setattr(W, "_SMALL_LU", 0)
     with pytest.warns(ConvergenceWarning, match="linear solver"):
         res = sb.solve(bratu_problem(12, 1.0), 0.0, options=NewtonOptions(workspace=workspace))
     assert res.status == 7

@@ -376,8 +376,13 @@ def test_newton_update_and_trial_kernels_match_numpy(compiled):
                                                       trial, problem.scales, dxbar)[0]
 
 
-def test_dense_step_and_trial_match_generic():
-    # the fused operations of the 1-D workspace against the generic composition
+@pytest.mark.parametrize("small", [True, False])
+def test_dense_step_and_trial_match_generic(monkeypatch, small):
+    # the fused operations of the 1-D workspace against the generic composition; the
+    # dense step factorises in the compiled kernel (small) or by LAPACK
+    import spectral_bulk.newton._workspace as W
+
+    monkeypatch.setattr(W, "_SMALL_LU", 10**6 if small else 0)
     problem, _ = coupled()
     params, opts = {}, NewtonOptions().validated()
     dense, generic = DenseWorkspace(problem, params, opts), GenericWorkspace(problem, params, opts)
@@ -398,3 +403,128 @@ def test_dense_step_and_trial_match_generic():
     np.testing.assert_allclose(td.F, tg.F, rtol=0, atol=1e-11 * np.abs(tg.F).max())
     np.testing.assert_allclose(td.dxbar, tg.dxbar, rtol=0, atol=1e-11 * np.abs(tg.dxbar).max())
     np.testing.assert_allclose([td.nbar, td.dd, td.nnew], [tg.nbar, tg.dd, tg.nnew], rtol=1e-10)
+
+
+# ------------------------------------------------------- small dense systems
+def _apply_getrf(lu, piv):
+    """``P L U`` from getrf factors: the row interchanges undone in reverse order."""
+    n = lu.shape[0]
+    M = (np.tril(lu, -1) + np.eye(n)) @ np.triu(lu)
+    for i in range(n - 1, -1, -1):
+        M[[i, piv[i]]] = M[[piv[i], i]]
+    return M
+
+
+@pytest.mark.parametrize("compiled", [True, False])
+def test_lu_factor_kernel_matches_lapack_getrf(compiled):
+    # reference: LAPACK getrf through scipy.linalg.lapack (partial pivoting on the first
+    # entry of largest modulus of each column, as idamax chooses it)
+    import scipy.linalg as sla
+
+    fun = D.lu_factor if compiled else K._lu_factor_py
+    rng = np.random.default_rng(11)
+    for n in (1, 2, 5, 17, 40):
+        M = rng.normal(size=(n, n))
+        M[0, 0] = 1e-3  # the first column needs an interchange
+        lu_r, piv_r, info_r = sla.lapack.dgetrf(np.asfortranarray(M))
+        a, piv = np.asfortranarray(M.copy()), np.empty(n, dtype=np.int32)
+        assert fun(a, piv) == info_r == 0
+        np.testing.assert_array_equal(piv, piv_r)
+        np.testing.assert_allclose(a, lu_r, rtol=0, atol=1e-13 * np.abs(lu_r).max())
+        np.testing.assert_allclose(_apply_getrf(a, piv), M, rtol=0, atol=1e-13 * np.abs(M).max())
+    # an exactly singular matrix: info names the first zero pivot (1-based), as getrf's
+    M = rng.normal(size=(6, 6))
+    M[:, 3] = 0.0
+    info_r = sla.lapack.dgetrf(np.asfortranarray(M))[2]
+    a, piv = np.asfortranarray(M.copy()), np.empty(6, dtype=np.int32)
+    assert fun(a, piv) == info_r == 4
+
+
+@pytest.mark.parametrize("compiled", [True, False])
+def test_rcond_kernel_matches_lapack_gecon(compiled):
+    # references: LAPACK gecon on the same factors (the same 1-norm estimator, "FORTRAN
+    # codes for estimating the one-norm of a real or complex matrix", ACM TOMS 14 (1988) 381,
+    # doi:10.1145/50063.214386), and the exact reciprocal condition number
+    # 1 / (||M||_1 ||M^-1||_1) from numpy, which the estimate never undercuts
+    import scipy.linalg as sla
+
+    fun = D.rcond if compiled else K._rcond_py
+    rng = np.random.default_rng(12)
+    for case in range(60):
+        n = 2 + case % 29
+        M = rng.normal(size=(n, n))
+        if case % 3 == 1:  # badly scaled columns
+            M = M * 10.0 ** rng.uniform(-6, 6, n)
+        if case % 3 == 2:  # nearly dependent columns
+            M[:, 0] = M[:, 1] + 1e-9 * rng.normal(size=n)
+        lu, piv, info = sla.lapack.dgetrf(np.asfortranarray(M))
+        anorm = np.abs(M).sum(axis=0).max()
+        got = fun(lu, anorm)
+        ref = sla.lapack.dgecon(lu, anorm, norm="1")[0]
+        exact = 1.0 / (anorm * np.abs(np.linalg.inv(M)).sum(axis=0).max())
+        assert got == pytest.approx(ref, rel=1e-10), (case, got, ref)
+        assert got >= exact * (1 - 1e-8), (case, got, exact)
+    # exactly singular (a zero pivot) and a zero matrix norm
+    M = rng.normal(size=(5, 5))
+    M[:, 2] = 0.0
+    lu = sla.lapack.dgetrf(np.asfortranarray(M))[0]
+    assert fun(lu, 1.0) == 0.0
+    assert fun(np.asfortranarray(np.eye(3)), 0.0) == 0.0
+
+
+@pytest.mark.parametrize("compiled", [True, False])
+def test_small_step_kernel_matches_its_parts(compiled):
+    # the fused step against its parts with LAPACK getrf in the middle
+    import scipy.linalg as sla
+
+    fun = D.small_step if compiled else K._small_step_py
+    problem, A, F, u = _random_case(6, nf=2, n=9)
+    nf, n = problem.nfields, problem.grid.size
+    size = nf * n
+    DT = np.ascontiguousarray(problem._dense_ops().transpose(0, 2, 1))
+    R = problem.row_sums()
+    J, w, rs = np.empty((size, size), order="F"), np.empty(nf), np.empty(size)
+    ok, rnorm, anorm = D.prepare_dense(A, DT, R, F, u, problem.scales, J, w, rs, True)
+    lu, piv, info = sla.lapack.dgetrf(J)
+    dx = np.empty(size)
+    ratio, ndx = D.newton_update(lu, piv, rs, F, w, dx, 1e-12)
+    J2, w2, rs2, piv2, dx2 = (np.empty((size, size), order="F"), np.empty(nf), np.empty(size),
+                              np.empty(size, dtype=np.int32), np.empty(size))
+    got = fun(A, DT, R, F, u, problem.scales, J2, w2, rs2, piv2, dx2, 1e-12)
+    assert got[0] and got[3] == info == 0
+    np.testing.assert_allclose(got[1:3], [rnorm, anorm], rtol=1e-13)
+    np.testing.assert_array_equal(piv2, piv)
+    np.testing.assert_allclose(J2, lu, rtol=0, atol=1e-12 * np.abs(lu).max())
+    np.testing.assert_allclose(dx2, dx, rtol=0, atol=1e-11 * np.abs(dx).max())
+    assert got[4] == pytest.approx(ratio, rel=1e-10) and got[5] == pytest.approx(ndx, rel=1e-10)
+    A[1, 0, 2, 4] = np.nan  # a non-finite coefficient stops it before the factorisation
+    assert fun(A, DT, R, F, u, problem.scales, J2, w2, rs2, piv2, dx2, 1e-12)[0] is False
+
+
+@pytest.mark.parametrize("complex_out", [False, True])
+def test_dense_real_residual_matches_generic(complex_out):
+    # the dense workspace's residual (the state alone, in real arithmetic) against the
+    # generic evaluation; a callback that computes in complex arithmetic gives NaN where
+    # it leaves the real domain, as the complex-step linearisation reports it
+    sqrt = (lambda v: np.sqrt(v + 0j)) if complex_out else np.sqrt
+
+    def eqs(c, f, p):
+        return [f.u_xx - sqrt(f.u) + f.v, f.v_x - f.u]
+
+    def left(c, f, p):
+        return [f.u - 1.0 + 0 * sqrt(f.u), None]
+
+    problem = sb.Problem(sb.Chebyshev(12, (0.0, 1.0)), ["u", "v"], eqs,
+                         {"left": left, "right": lambda c, f, p: [f.u - 0.5, f.v]})
+    x = problem.grid.coords["x"]
+    opts = NewtonOptions().validated()
+    ws = workspace(problem, {}, opts)
+    assert type(ws) is DenseWorkspace
+    for u in (np.concatenate([1 + x, np.sin(x)]), np.concatenate([np.cos(4 * x), x])):
+        with np.errstate(invalid="ignore"):
+            got, ref, lin = ws.residual(u), problem.residual(u), ws.linearize(u)[0]
+        np.testing.assert_array_equal(np.isnan(got), np.isnan(lin))
+        np.testing.assert_array_equal(np.isnan(got), np.isnan(ref))
+        ok = ~np.isnan(ref)
+        np.testing.assert_allclose(got[ok], ref[ok], rtol=0, atol=1e-13 * np.abs(ref[ok]).max())
+    assert np.isnan(got).any()  # cos(4x) < 0 on part of the grid

@@ -284,6 +284,120 @@ def _lu_solve_py(lu, piv, rscale, rhs, out):
         out[r] = -out[r]
 
 
+def _triangular_inverse_py(lu, x, transpose):
+    """``x <- (L U)^{-1} x`` (or ``(L U)^{-T} x``) in place, for the factors of LAPACK ``getrf``.
+
+    ``M = P L U``: the row interchanges ``P`` are left out, as ``gecon`` does, since
+    ``||M^{-1}||_1 = ||U^{-1} L^{-1} P^T||_1 = ||U^{-1} L^{-1}||_1`` (a column permutation
+    keeps the column sums).
+    """
+    n = lu.shape[0]
+    if not transpose:
+        for j in range(n):
+            v = x[j]
+            if v != 0.0:
+                for i in range(j + 1, n):
+                    x[i] -= lu[i, j] * v
+        for j in range(n - 1, -1, -1):
+            x[j] /= lu[j, j]
+            v = x[j]
+            if v != 0.0:
+                for i in range(j):
+                    x[i] -= lu[i, j] * v
+        return
+    # U^T (forward) then L^T (backward, unit diagonal); column j of the Fortran-ordered
+    # factor is contiguous, hence the dot-product form
+    for j in range(n):
+        s = x[j]
+        for i in range(j):
+            s -= lu[i, j] * x[i]
+        x[j] = s / lu[j, j]
+    for j in range(n - 1, -1, -1):
+        s = x[j]
+        for i in range(j + 1, n):
+            s -= lu[i, j] * x[i]
+        x[j] = s
+
+
+def _rcond_py(lu, anorm):
+    """Reciprocal 1-norm condition estimate of ``M`` from its ``getrf`` factors (as LAPACK ``gecon``).
+
+    ``||M^{-1}||_1`` is estimated by the iteration of "FORTRAN codes for estimating the
+    one-norm of a real or complex matrix, with applications to condition estimation",
+    ACM Trans. Math. Softw. 14 (1988) 381, doi:10.1145/50063.214386 (Algorithm 4.1, the
+    scheme of LAPACK ``lacn2``): power-like steps on ``sign`` vectors, at most five, then
+    the alternating-sign test vector; the estimate is a lower bound, almost always exact.
+    Returns ``1 / (anorm * est)``, and 0 for a zero, non-finite or overflowing estimate
+    (``gecon`` guards overflow by scaling; here it means singular to working precision).
+    """
+    n = lu.shape[0]
+    if n == 0 or not anorm > 0:
+        return 0.0
+    for i in range(n):  # exactly singular (and no division by zero below)
+        if lu[i, i] == 0.0:
+            return 0.0
+    x = np.empty(n)
+    xi = np.empty(n)
+    for i in range(n):
+        x[i] = 1.0 / n
+    _triangular_inverse_py(lu, x, False)
+    est = 0.0
+    for i in range(n):
+        est += abs(x[i])
+    if n > 1:
+        for i in range(n):
+            xi[i] = 1.0 if x[i] >= 0 else -1.0
+            x[i] = xi[i]
+        _triangular_inverse_py(lu, x, True)
+        j = 0
+        for i in range(1, n):
+            if abs(x[i]) > abs(x[j]):
+                j = i
+        for it in range(4):
+            for i in range(n):
+                x[i] = 0.0
+            x[j] = 1.0
+            _triangular_inverse_py(lu, x, False)
+            old = est
+            est = 0.0
+            same = True
+            for i in range(n):
+                est += abs(x[i])
+                s = 1.0 if x[i] >= 0 else -1.0
+                if s != xi[i]:
+                    same = False
+                xi[i] = s
+            if same or est <= old:
+                est = max(est, old)
+                break
+            for i in range(n):
+                x[i] = xi[i]
+            _triangular_inverse_py(lu, x, True)
+            last = j
+            j = 0
+            for i in range(1, n):
+                if abs(x[i]) > abs(x[j]):
+                    j = i
+            if abs(x[last]) == abs(x[j]):
+                break
+        # alternating-sign vector: catches matrices that fool the iteration
+        sign = 1.0
+        for i in range(n):
+            x[i] = sign * (1.0 + i / (n - 1))
+            sign = -sign
+        _triangular_inverse_py(lu, x, False)
+        alt = 0.0
+        for i in range(n):
+            alt += abs(x[i])
+        alt = 2.0 * alt / (3.0 * n)
+        if alt > est:
+            est = alt
+    if not (est > 0 and est < np.inf):
+        return 0.0
+    r = (1.0 / est) / anorm
+    return r if r == r else 0.0
+
+
 def _newton_update_py(lu, piv, rscale, F, w, dx, min_ratio):
     """The Newton correction after ``getrf``: pivot screen, ``dx = -J^{-1} F`` and its norm.
 
@@ -296,6 +410,63 @@ def _newton_update_py(lu, piv, rscale, F, w, dx, min_ratio):
         return ratio, np.nan
     _lu_solve_py(lu, piv, rscale, F, dx)
     return ratio, _scaled_norm_py(dx, w)
+
+
+def _lu_factor_py(a, piv):
+    """LU factorisation with partial pivoting in place, as LAPACK ``getrf`` (unblocked).
+
+    ``a`` (Fortran order) is overwritten by the unit lower and the upper triangular
+    factors and ``piv`` by the 0-based row interchanges, applied in order; the pivot of
+    each column is its first entry of largest modulus (as ``idamax``).  Returns ``info``:
+    0, or ``k + 1`` when ``U[k, k]`` is exactly zero (the factorisation goes on, as
+    LAPACK's does).  For the small matrices of one-dimensional problems, where the call
+    into LAPACK costs more than the arithmetic.
+    """
+    n = a.shape[0]
+    info = 0
+    for k in range(n):
+        p = k
+        m = abs(a[k, k])
+        for i in range(k + 1, n):
+            v = abs(a[i, k])
+            if v > m:
+                m = v
+                p = i
+        piv[k] = p
+        if a[p, k] == 0.0:
+            if info == 0:
+                info = k + 1
+            continue
+        if p != k:
+            for j in range(n):
+                t = a[k, j]
+                a[k, j] = a[p, j]
+                a[p, j] = t
+        inv = 1.0 / a[k, k]
+        for i in range(k + 1, n):
+            a[i, k] *= inv
+        for j in range(k + 1, n):
+            f = a[k, j]
+            if f != 0.0:
+                for i in range(k + 1, n):
+                    a[i, j] -= a[i, k] * f
+    return info
+
+
+def _small_step_py(A, DT, R, F, u, scales, J, w, rscale, piv, dx, min_ratio):
+    """A whole Newton correction of a small problem in one call (``dispatchers().small_step``).
+
+    :func:`_prepare_dense_py` (checks, norms, assembly, equilibration),
+    :func:`_lu_factor_py` on ``J`` and :func:`_newton_update_py`.  Returns
+    ``(finite, rnorm, anorm, info, ratio, ndx)``; when not ``finite`` nothing after the
+    checks is computed (``info = -1``).
+    """
+    finite, rnorm, anorm = _prepare_dense_py(A, DT, R, F, u, scales, J, w, rscale, True)
+    if not finite:
+        return False, rnorm, anorm, -1, 0.0, np.nan
+    info = _lu_factor_py(J, piv)
+    ratio, ndx = _newton_update_py(J, piv, rscale, F, w, dx, min_ratio)
+    return True, rnorm, anorm, info, ratio, ndx
 
 
 def _trial_point_py(u, lam, dx, trial, dstack, h, buf):
@@ -351,7 +522,8 @@ _KERNELS = {"prepare_dense": "_prepare_dense_py", "newton_update": "_newton_upda
             "fill_batch": "_fill_batch_py", "split_rows": "_split_rows_py",
             "scaled_norm": "_scaled_norm_py", "damping_norms": "_damping_norms_py",
             "field_weights": "_field_weights_py", "chebyshev_tails": "_chebyshev_tails_py",
-            "lu_solve": "_lu_solve_py", "pivot_ratio": "_pivot_ratio_py"}
+            "lu_solve": "_lu_solve_py", "pivot_ratio": "_pivot_ratio_py", "rcond": "_rcond_py",
+            "lu_factor": "_lu_factor_py", "small_step": "_small_step_py"}
 _DISPATCH = None
 
 

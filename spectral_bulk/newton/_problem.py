@@ -331,12 +331,14 @@ class Problem:
                     f"equations returned None for field {self.fields[i]!r}; "
                     "None is only meaningful in boundary conditions"
                 )
+        if not complex_step:
+            eq = [real_rows(e) for e in eq]
         rows = np.array(eq, dtype=complex if complex_step else dtype)
         for (key, fun, idx), cb in zip(plan["faces"], face_coords):
             bc = self._call(fun, cb, dvals[..., idx], p, f"boundary condition {key!r}", len(idx))
             for i, b in enumerate(bc):
                 if b is not None:
-                    rows[i][..., idx] = b
+                    rows[i][..., idx] = b if complex_step else real_rows(b)
         return rows
 
     def residual(self, state, params=None):
@@ -538,6 +540,15 @@ def complex_step_perturbation(nf, na):
     s = np.arange(nslot)
     t[s // na, s % na, s, 0] = 1j * _H
     return t
+
+
+def real_rows(r):
+    """Rows of a real evaluation; NaN where a callback returned a complex value with a
+    non-zero imaginary part (it left the real domain), as the complex-step rows say."""
+    if np.iscomplexobj(r):
+        r = np.asarray(r)
+        r = np.where(r.imag == 0, r.real, np.nan)
+    return r
 
 
 def split_rows(rows, nf, na, npts):

@@ -45,12 +45,16 @@ import scipy.linalg as sla
 from ..exceptions import ProblemDefinitionError, SingularJacobianError
 from ._kernels import dispatchers
 from ._linalg import DenseSolver, make_solver
-from ._problem import _H, Namespace
+from ._problem import _H, Namespace, real_rows
 
 __all__ = ["GenericWorkspace", "DenseWorkspace", "workspace", "Step", "Trial"]
 
 _EPS = np.finfo(float).eps
 _MIN_PIVOT_RATIO = 1e4 * _EPS  # below it a factorisation gets the condition estimate
+#: Up to this many unknowns the dense step factorises in the compiled kernel
+#: (:func:`~spectral_bulk.newton._kernels._small_step_py`), above it by LAPACK ``getrf``:
+#: at small sizes the LAPACK call's own overhead exceeds the arithmetic.
+_SMALL_LU = 48
 
 
 class Step(NamedTuple):
@@ -213,62 +217,76 @@ class DenseWorkspace(GenericWorkspace):
         self.k.split_rows(rows, 1 / _H, F, A)
         return F, A
 
-    def _rows(self):
-        """The callbacks on the batch in ``buf``: complex-step rows (a reused buffer)."""
+    def _rows(self, ev=None):
+        """The callbacks on a batch of derivatives: their rows in a reused buffer.
+
+        ``ev`` is one of the evaluation sets of :func:`_cached`: the complex-step batch in
+        ``buf`` (default) or the real state alone (``"real"``).  The rows are consumed by
+        the caller before the next call.
+        """
         c, pr = self.c, self.problem
+        ev = c["cs"] if ev is None else ev
         nf, n = c["nf"], c["n"]
-        rows = c["rowbuf"]  # consumed by the caller: F and A are fresh arrays
-        out = pr.equations(c["coords"], c["f"], self.p)
-        target = c["target"]
+        rows = ev["rowbuf"]
+        out = pr.equations(c["coords"], ev["f"], self.p)
+        target, real = ev["target"], ev["real"]
         ok = type(out) is list and len(out) == nf
         if ok:  # the common case: one array of the batch shape per field, copied as checked
             for i in range(nf):
                 r = out[i]
-                if getattr(r, "shape", None) != target:
+                if getattr(r, "shape", None) != target or (real and r.dtype.kind == "c"):
                     ok = False
                     break
                 rows[i] = r
         if not ok:
-            for i, e in enumerate(pr._normalise(out, c["eq_what"], n, c["batch"])):
+            for i, e in enumerate(pr._normalise(out, c["eq_what"], n, ev["batch"])):
                 if e is None:
                     raise ProblemDefinitionError(
                         f"equations returned None for field {pr.fields[i]!r}; "
                         "None is only meaningful in boundary conditions"
                     )
-                rows[i] = e
-        for fun, cb, fns, sl, what, target in c["faces"]:
+                rows[i] = real_rows(e) if real else e
+        for fun, cb, fns, sl, what, target in ev["faces"]:
             bc = fun(cb, fns, self.p)
             if type(bc) is list and len(bc) == nf:
                 for i in range(nf):
                     b = bc[i]
                     if b is None:
                         continue
-                    if getattr(b, "shape", None) != target:
+                    if getattr(b, "shape", None) != target or (real and b.dtype.kind == "c"):
                         break
                     rows[i, :, sl] = b
                 else:
                     continue  # every row checked and written: next face
             # anything else (scalars, wrong shapes or counts) is normalised, or named in an error
-            for i, b in enumerate(pr._normalise(bc, what, target[1], c["batch"])):
+            for i, b in enumerate(pr._normalise(bc, what, target[1], ev["batch"])):
                 if b is not None:
-                    rows[i, :, sl] = b
+                    rows[i, :, sl] = real_rows(b) if real else b
         return rows
 
     def step(self, u, F, A):
         if self.generic:
             return super().step(u, F, A)
         c = self.c
-        w = np.empty(c["nf"])
-        finite, rnorm, anorm = self.k.prepare_dense(A, c["dense"], c["rowsums"], F, u, self.problem.scales,
-                                                    self.J, w, self.rscale, True)
-        if not finite:
-            return Step(3)
-        lu, piv, info = sla.lapack.dgetrf(self.J, overwrite_a=True)
         size = F.shape[0]
+        w, dx = np.empty(c["nf"]), np.empty(size)
+        if size <= _SMALL_LU:  # one compiled call: checks, assembly, LU and correction
+            piv = np.empty(size, dtype=np.int32)
+            finite, rnorm, anorm, info, ratio, ndx = self.k.small_step(
+                A, c["dense"], c["rowsums"], F, u, self.problem.scales, self.J, w, self.rscale, piv, dx,
+                _MIN_PIVOT_RATIO)
+            if not finite:
+                return Step(3)
+            lu = self.J
+        else:
+            finite, rnorm, anorm = self.k.prepare_dense(A, c["dense"], c["rowsums"], F, u,
+                                                        self.problem.scales, self.J, w, self.rscale, True)
+            if not finite:
+                return Step(3)
+            lu, piv, info = sla.lapack.dgetrf(self.J, overwrite_a=True)
+            ratio, ndx = self.k.newton_update(lu, piv, self.rscale, F, w, dx, _MIN_PIVOT_RATIO)
         self.J = np.empty((size, size), order="F")  # `lu` holds the old buffer
         rscale, self.rscale = self.rscale, np.empty(size)
-        dx = np.empty(size)
-        ratio, ndx = self.k.newton_update(lu, piv, rscale, F, w, dx, _MIN_PIVOT_RATIO)
         suspect = info != 0 or ratio <= _MIN_PIVOT_RATIO
         solver = DenseSolver.from_factors(lu, piv, rscale, anorm, suspect)
         if suspect:  # the condition estimate decides (and raises when singular)
@@ -306,7 +324,17 @@ class DenseWorkspace(GenericWorkspace):
     def residual(self, u):
         if self.generic:
             return self.problem.residual(u, self.params)
-        return self.linearize(u)[0]
+        c = self.c
+        ev = c["real"]
+        nf, na, n = c["nf"], c["na"], c["n"]
+        ev["buf"][:, :, 0, :] = (u.reshape(nf, n) @ c["dstack"]).reshape(nf, na, n)
+        try:
+            rows = self._rows(ev)
+        except ProblemDefinitionError:
+            raise
+        except (ValueError, TypeError, IndexError):  # as in linearize: the complex batch copes
+            return self.linearize(u)[0]
+        return rows.reshape(nf * n).copy()
 
     def norm(self, dx, w):
         return self.k.scaled_norm(dx, w)
@@ -332,35 +360,47 @@ class DenseWorkspace(GenericWorkspace):
         return out
 
 
+def _evaluation_set(problem, plan, buf, real):
+    """Namespaces over a derivative buffer ``(nf, na, batch, n)`` and a rows buffer for it."""
+    nf, _, nb, n = buf.shape
+    names = plan["names"]
+    # one point per end in 1-D; both ends share one call when they share the callback
+    # (the conditions are pointwise); basic slices keep the namespaces views of `buf`
+    groups = {}
+    for key, fun, idx in plan["faces"]:
+        groups.setdefault(id(fun), (fun, []))[1].append((key, int(idx[0])))
+    faces = []
+    for fun, ends in groups.values():
+        pts = sorted(i for _, i in ends)
+        sl = slice(pts[0], pts[-1] + 1, max(pts[-1] - pts[0], 1))
+        cb = Namespace({nm: c[sl] for nm, c in problem.grid.coords.items()}, "coordinate")
+        fns = Namespace({nm: buf[i, k][..., sl] for nm, i, k in names}, "field or derivative")
+        what = "boundary condition " + ", ".join(repr(key) for key, _ in ends)
+        faces.append((fun, cb, fns, sl, what, (nb, len(pts))))
+    return {"buf": buf, "rowbuf": np.empty((nf, nb, n), dtype=buf.dtype), "batch": (nb,),
+            "target": (nb, n), "real": real, "faces": faces,
+            "f": Namespace({nm: buf[i, k] for nm, i, k in names}, "field or derivative")}
+
+
 def _cached(problem):
-    """Buffers and namespaces of :class:`DenseWorkspace`, built once per problem and grid."""
+    """Buffers and namespaces of :class:`DenseWorkspace`, built once per problem and grid.
+
+    Two evaluation sets: ``"cs"``, the complex-step batch (one slot per field and
+    derivative and a last, unperturbed one) and ``"real"``, the state alone in real
+    arithmetic (a residual without the linearisation).
+    """
     plan = problem._plan()
     if "workspace" not in plan:
         nf, na, n = problem.nfields, len(problem.alphas), problem.grid.size
         nslot = nf * na + 1
-        buf = np.zeros((nf, na, nslot, n), dtype=complex)
-        rowbuf = np.empty((nf, nslot, n), dtype=complex)
-        names = plan["names"]
-        # one point per end in 1-D; both ends share one call when they share the callback
-        # (the conditions are pointwise); basic slices keep the namespaces views of `buf`
-        groups = {}
-        for key, fun, idx in plan["faces"]:
-            groups.setdefault(id(fun), (fun, []))[1].append((key, int(idx[0])))
-        faces = []
-        for fun, ends in groups.values():
-            pts = sorted(i for _, i in ends)
-            sl = slice(pts[0], pts[-1] + 1, max(pts[-1] - pts[0], 1))
-            cb = Namespace({nm: c[sl] for nm, c in problem.grid.coords.items()}, "coordinate")
-            fns = Namespace({nm: buf[i, k][..., sl] for nm, i, k in names}, "field or derivative")
-            what = "boundary condition " + ", ".join(repr(key) for key, _ in ends)
-            faces.append((fun, cb, fns, sl, what, (nslot, len(pts))))
+        cs = _evaluation_set(problem, plan, np.zeros((nf, na, nslot, n), dtype=complex), False)
+        real = _evaluation_set(problem, plan, np.zeros((nf, na, 1, n)), True)
         plan["workspace"] = {
-            "nf": nf, "na": na, "n": n, "batch": (nslot,), "buf": buf, "rowbuf": rowbuf,
-            "dstack": plan["dstack"], "coords": plan["coords"], "faces": faces,
-            "f": Namespace({nm: buf[i, k] for nm, i, k in names}, "field or derivative"),
+            "nf": nf, "na": na, "n": n, "cs": cs, "real": real, "buf": cs["buf"],
+            "dstack": plan["dstack"], "coords": plan["coords"],
             "dense": np.ascontiguousarray(problem._dense_ops().transpose(0, 2, 1)),  # kernel layout
             "rowsums": problem.row_sums(),
-            "eq_what": f"equations {problem.name!r}", "target": (nslot, n),
+            "eq_what": f"equations {problem.name!r}",
             "coeffs": np.ascontiguousarray(problem.grid.axes[0].coeffs(np.eye(n), axis=0)),
         }
     return plan["workspace"]
@@ -368,10 +408,18 @@ def _cached(problem):
 
 def workspace(problem, params, opts):
     """The fastest workspace that serves ``problem`` with options ``opts``."""
-    one_d_dense = (problem.grid.ndim == 1 and opts.linear_solver in ("auto", "dense")
-                   and type(problem.grid.axes[0]).__name__ == "Chebyshev"
-                   and problem.linearization == "complex-step" and problem._batched
-                   and all(len(idx) == 1 for _, _, idx in problem._plan()["faces"]))
-    if one_d_dense and opts.workspace == "auto":
+    if opts.workspace == "auto" and opts.linear_solver in ("auto", "dense") and _dense_capable(problem):
         return DenseWorkspace(problem, params, opts)
     return GenericWorkspace(problem, params, opts)
+
+
+def _dense_capable(problem):
+    """Whether :class:`DenseWorkspace` can serve ``problem`` (decided once per problem and grid)."""
+    plan = problem._plan()
+    ok = plan.get("dense_capable")
+    if ok is None:
+        ok = plan["dense_capable"] = (
+            problem.grid.ndim == 1 and type(problem.grid.axes[0]).__name__ == "Chebyshev"
+            and problem.linearization == "complex-step"
+            and all(len(idx) == 1 for _, _, idx in plan["faces"]))
+    return ok and problem._batched
