@@ -192,7 +192,7 @@ def initial_state(problem, guess):
             raise ProblemDefinitionError(
                 f"guess has shape {arr.shape}; expected {(nf,) + grid.shape} or a dict by field"
             )
-    if not np.all(np.isfinite(state)):
+    if not np.isfinite(state).all():
         bad = [f for f, v in zip(problem.fields, problem.split(state)) if not np.all(np.isfinite(v))]
         raise ProblemDefinitionError(f"the guess has non-finite values (NaN or inf) in field(s) {bad}")
     return state
@@ -275,7 +275,8 @@ def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False, f
     say in extended precision, keeps that evaluation); ``None`` from it falls back.
     """
     tol = opts.tol
-    info = dict(nfev=0, njev=0, residual_norms=[], update_norms=[], damping=[], tol=tol)
+    nfev = njev = 0
+    rnorms, unorms, damping = [], [], []
     fmt = dict(tol=tol, max_iter=opts.max_iter, lambda_min=opts.lambda_min, tail_tol=opts.tail_tol,
                update=np.nan, residual=np.nan, tail=np.nan, rcond=np.nan, where="", fields="",
                why="")
@@ -286,13 +287,14 @@ def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False, f
     ws = workspace(problem, params, opts)
 
     def finish(status, state, A=None, F=None, solver=None):
+        nonlocal nfev
         tails = ws.tails(state)
         tail = dict(zip(problem.fields, map(float, tails)))
         if F is None:
             F = final_residual(state) if final_residual is not None else None
             if F is None:
                 F = ws.residual(state)
-            info["nfev"] += 1
+            nfev += 1
         r = ws.backward_error(F, A, state) if A is not None and np.isfinite(F).all() else np.nan
         if status == 0:
             if not r <= tol:
@@ -302,10 +304,12 @@ def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False, f
                 fmt["fields"] = ", ".join(f for f, t in tail.items() if t > opts.tail_tol)
         rcond = solver.rcond if solver is not None else np.nan
         fmt.update(residual=r, tail=float(max(tails)), rcond=rcond,
-                   update=info["update_norms"][-1] if info["update_norms"] else np.nan)
+                   update=unorms[-1] if unorms else np.nan)
         res = SolveResult(problem, state, params, status=status, message=MESSAGES[status].format(**fmt),
-                          iterations=info["njev"], residual=r, update=fmt["update"], tail=tail,
-                          condition=rcond, linear_solver=getattr(solver, "kind", None), **info)
+                          iterations=njev, residual=r, update=fmt["update"], tail=tail,
+                          condition=rcond, linear_solver=getattr(solver, "kind", None), nfev=nfev,
+                          njev=njev, residual_norms=rnorms, update_norms=unorms, damping=damping,
+                          tol=tol)
         keep = keep_factor and status == 0 and getattr(solver, "kind", None) == "dense"
         res._jacobian_solver = solver if keep else None
         return res
@@ -319,27 +323,28 @@ def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False, f
             pending = None
         else:
             F, A = ws.linearize(u)
-            info["nfev"] += 1
-        info["njev"] += 1
+            nfev += 1
+        njev += 1
         step = ws.step(u, F, A)
-        if step.status == 3:
-            if first_is_input and info["njev"] == 1:
-                problem.check(u, params)  # raises, naming the equations that are not finite
-            fmt["where"] = "in the residual or its linearisation at iteration " + str(info["njev"])
-            return finish(3, u, F=F)
-        info["residual_norms"].append(step.rnorm)
-        if step.status == 2:
-            return finish(2, u, A=A, F=F, solver=step.solver)
-        if step.status == 7:  # pragma: no cover - defensive
-            fmt["why"] = step.why
-            return finish(7, u, A=A, F=F)
-        solver, dx, ndx, w_u = step.solver, step.dx, step.ndx, step.w
+        status, rnorm, w_u, solver, dx, ndx, _ = step
+        if status:
+            if status == 3:
+                if first_is_input and njev == 1:
+                    problem.check(u, params)  # raises, naming the equations that are not finite
+                fmt["where"] = "in the residual or its linearisation at iteration " + str(njev)
+                return finish(3, u, F=F)
+            rnorms.append(rnorm)
+            if status == 2:
+                return finish(2, u, A=A, F=F, solver=solver)
+            fmt["why"] = step.why  # pragma: no cover - defensive (status 7)
+            return finish(7, u, A=A, F=F)  # pragma: no cover
+        rnorms.append(rnorm)
         if not ndx < math.inf:  # NaN or inf: dx is not finite
             fmt["why"] = "non-finite Newton update"
             return finish(7, u, A=A, F=F)
-        info["update_norms"].append(ndx)
+        unorms.append(ndx)
         if ndx <= tol:
-            info["damping"].append(1.0)
+            damping.append(1.0)
             return finish(0, u + dx, A=A, solver=solver)
         if opts.damping and prev is not None:
             ndx_prev, dxbar_prev, lam_prev = prev
@@ -353,10 +358,10 @@ def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False, f
                 fmt["update"] = ndx
                 return finish(4, u, A=A, F=F, solver=solver)
             t = ws.trial(u, lam, dx, step, linearize_trial, opts.damping)
-            info["nfev"] += 1
+            nfev += 1
             if not t.finite:
                 if not opts.damping:
-                    fmt["where"] = f"after an undamped step at iteration {info['njev']}"
+                    fmt["where"] = f"after an undamped step at iteration {njev}"
                     return finish(3, u, A=A, F=F, solver=solver)
                 lam /= 2
                 reduced = True
@@ -375,18 +380,18 @@ def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False, f
                 reduced = True  # one enlargement per iteration: no ping-pong
                 continue
             break
-        info["damping"].append(lam)
+        damping.append(lam)
         u, dxbar = t.u, t.dxbar
         if t.A is not None:
             pending = (t.F, t.A)  # a non-finite A is caught when it is prepared
         if dxbar is not None and lam == 1.0 and t.nnew <= tol:
             # the simplified-Newton correction is already below tolerance
-            info["update_norms"].append(t.nnew)
+            unorms.append(t.nnew)
             if pending is not None:
                 return finish(0, u + dxbar, A=pending[1], solver=solver)
             return finish(0, u + dxbar, A=A, solver=solver)
         prev = (ndx, dxbar, lam) if dxbar is not None else None
-    fmt["update"] = info["update_norms"][-1]
+    fmt["update"] = unorms[-1]
     return finish(1, u, A=A, solver=solver)
 
 

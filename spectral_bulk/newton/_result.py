@@ -49,29 +49,31 @@ class SolveResult:
     an array when there is one field or ``field=`` is given, else a dict.
     """
 
-    def __init__(self, problem, state, params, **info):
+    def __init__(self, problem, state, params, *, status, message, iterations=0, nfev=0, njev=0,
+                 residual_norms=(), update_norms=(), damping=(), residual=np.nan, update=np.nan,
+                 tail=None, condition=np.nan, wall_time=0.0, tol=None, linear_solver=None, **extra):
         self.problem = problem
         self.grid = problem.grid
         self.state = np.asarray(state, dtype=float)
         self.params = dict(params)
         self.fields = problem.field_dict(self.state)
-        self.status = info.pop("status")
-        self.message = info.pop("message")
-        self.converged = self.status == 0
-        self.iterations = info.pop("iterations", 0)
-        self.nfev = info.pop("nfev", 0)
-        self.njev = info.pop("njev", 0)
-        self.residual_norms = list(info.pop("residual_norms", []))
-        self.update_norms = list(info.pop("update_norms", []))
-        self.damping = list(info.pop("damping", []))
-        self.residual = float(info.pop("residual", np.nan))
-        self.update = float(info.pop("update", np.nan))
-        self.tail = dict(info.pop("tail", {}))
-        self.condition = float(info.pop("condition", np.nan))
-        self.wall_time = float(info.pop("wall_time", 0.0))
-        self.tol = info.pop("tol", None)
-        self.linear_solver = info.pop("linear_solver", None)
-        self.extra = info
+        self.status = status
+        self.message = message
+        self.converged = status == 0
+        self.iterations = iterations
+        self.nfev = nfev
+        self.njev = njev
+        self.residual_norms = list(residual_norms)
+        self.update_norms = list(update_norms)
+        self.damping = list(damping)
+        self.residual = float(residual)
+        self.update = float(update)
+        self.tail = dict(tail or {})
+        self.condition = float(condition)
+        self.wall_time = float(wall_time)
+        self.tol = tol
+        self.linear_solver = linear_solver
+        self.extra = extra
 
     # aliases used across the package (one naming scheme: nit, success)
     @property
