@@ -289,7 +289,8 @@ def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False, f
     def finish(status, state, A=None, F=None, solver=None):
         nonlocal nfev
         tails = ws.tails(state)
-        tail = dict(zip(problem.fields, map(float, tails)))
+        tail = dict(zip(problem.fields, tails.tolist()))
+        worst = max(tail.values())
         if F is None:
             F = final_residual(state) if final_residual is not None else None
             if F is None:
@@ -299,11 +300,11 @@ def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False, f
         if status == 0:
             if not r <= tol:
                 status = 6
-            elif max(tails) > opts.tail_tol:
+            elif worst > opts.tail_tol:
                 status = 5
                 fmt["fields"] = ", ".join(f for f, t in tail.items() if t > opts.tail_tol)
         rcond = solver.rcond if solver is not None else np.nan
-        fmt.update(residual=r, tail=float(max(tails)), rcond=rcond,
+        fmt.update(residual=r, tail=worst, rcond=rcond,
                    update=unorms[-1] if unorms else np.nan)
         res = SolveResult(problem, state, params, status=status, message=MESSAGES[status].format(**fmt),
                           iterations=njev, residual=r, update=fmt["update"], tail=tail,
