@@ -269,17 +269,7 @@ def _lu_solve_py(lu, piv, rscale, rhs, out):
             t = out[i]
             out[i] = out[j]
             out[j] = t
-    for j in range(n):
-        x = out[j]
-        if x != 0.0:
-            for i in range(j + 1, n):
-                out[i] -= lu[i, j] * x
-    for j in range(n - 1, -1, -1):
-        out[j] /= lu[j, j]
-        x = out[j]
-        if x != 0.0:
-            for i in range(j):
-                out[i] -= lu[i, j] * x
+    _triangular_inverse_py(lu, out, False)
     for r in range(n):
         out[r] = -out[r]
 
@@ -287,7 +277,8 @@ def _lu_solve_py(lu, piv, rscale, rhs, out):
 def _triangular_inverse_py(lu, x, transpose):
     """``x <- (L U)^{-1} x`` (or ``(L U)^{-T} x``) in place, for the factors of LAPACK ``getrf``.
 
-    ``M = P L U``: the row interchanges ``P`` are left out, as ``gecon`` does, since
+    ``M = P L U``: the row interchanges ``P`` are the caller's.  :func:`_lu_solve_py` applies
+    them first; the condition estimate leaves them out, as ``gecon`` does, since
     ``||M^{-1}||_1 = ||U^{-1} L^{-1} P^T||_1 = ||U^{-1} L^{-1}||_1`` (a column permutation
     keeps the column sums).
     """
