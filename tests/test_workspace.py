@@ -528,3 +528,44 @@ def test_dense_real_residual_matches_generic(complex_out):
         ok = ~np.isnan(ref)
         np.testing.assert_allclose(got[ok], ref[ok], rtol=0, atol=1e-13 * np.abs(ref[ok]).max())
     assert np.isnan(got).any()  # cos(4x) < 0 on part of the grid
+
+
+def test_concurrent_solves_of_one_problem_match_sequential_ones():
+    # the dense workspace's evaluation buffers are per thread: threads solving the same
+    # problem at once must get exactly the sequential iterates (with one shared buffer they
+    # read each other's states; some results even passed their certificate off by 4e-9)
+    import sys
+    import threading
+
+    problem = bratu(17, 1.0)
+    lams = [0.5, 1.0, 2.0, 3.0]
+    ref = {lam: sb.solve(problem, 0.0, params={"lam": lam}).state for lam in lams}
+    bad = []
+
+    def work(lam):
+        for _ in range(60):
+            res = sb.solve(problem, 0.0, params={"lam": lam})
+            if not np.array_equal(res.state, ref[lam]):
+                bad.append((lam, res.converged))
+
+    interval = sys.getswitchinterval()
+    sys.setswitchinterval(1e-6)  # switch threads as often as the interpreter allows
+    try:
+        threads = [threading.Thread(target=work, args=(lam,)) for lam in lams]
+        for t in threads:
+            t.start()
+        for t in threads:
+            t.join()
+    finally:
+        sys.setswitchinterval(interval)
+    assert not bad, bad[:5]
+
+
+def test_used_problem_pickles_without_its_buffers():
+    # the per-grid cache (with per-thread buffers) is dropped on pickling and rebuilt
+    import pickle
+
+    problem = bratu(14, 1.0)
+    a = sb.solve(problem, 0.0)
+    b = sb.solve(pickle.loads(pickle.dumps(problem)), 0.0)
+    np.testing.assert_array_equal(a.state, b.state)

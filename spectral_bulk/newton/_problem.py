@@ -172,6 +172,12 @@ class Problem:
         self._joint = {}  # parameter -> whether linearize_with_param may batch it (checked once)
         self._ops = None
 
+    def __getstate__(self):
+        # the per-grid cache is rebuilt on demand; it holds per-thread buffers that do not pickle
+        state = dict(self.__dict__)
+        state["_ops"] = None
+        return state
+
     # --------------------------------------------------------------- utilities
     @property
     def nfields(self):

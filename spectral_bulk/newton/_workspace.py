@@ -37,6 +37,7 @@ callers need):
 """
 
 import math
+import threading
 from typing import NamedTuple
 
 import numpy as np
@@ -385,19 +386,25 @@ def _evaluation_set(problem, plan, buf, real):
 
 
 def _cached(problem):
-    """Buffers and namespaces of :class:`DenseWorkspace`, built once per problem and grid.
+    """Buffers and namespaces of :class:`DenseWorkspace`, built once per problem, grid and thread.
 
     Two evaluation sets: ``"cs"``, the complex-step batch (one slot per field and
     derivative and a last, unperturbed one) and ``"real"``, the state alone in real
-    arithmetic (a residual without the linearisation).
+    arithmetic (a residual without the linearisation).  The callbacks read the buffers
+    that the kernels fill, so threads solving the same problem at once each get their own
+    (a shared set gave wrong iterates under concurrent solves: ``tests/test_workspace.py``).
     """
     plan = problem._plan()
-    if "workspace" not in plan:
+    local = plan.get("workspace")
+    if local is None:
+        local = plan.setdefault("workspace", threading.local())  # atomic under the GIL
+    c = getattr(local, "c", None)
+    if c is None:
         nf, na, n = problem.nfields, len(problem.alphas), problem.grid.size
         nslot = nf * na + 1
         cs = _evaluation_set(problem, plan, np.zeros((nf, na, nslot, n), dtype=complex), False)
         real = _evaluation_set(problem, plan, np.zeros((nf, na, 1, n)), True)
-        plan["workspace"] = {
+        c = local.c = {
             "nf": nf, "na": na, "n": n, "cs": cs, "real": real, "buf": cs["buf"],
             "dstack": plan["dstack"], "coords": plan["coords"],
             "dense": np.ascontiguousarray(problem._dense_ops().transpose(0, 2, 1)),  # kernel layout
@@ -405,7 +412,7 @@ def _cached(problem):
             "eq_what": f"equations {problem.name!r}",
             "coeffs": np.ascontiguousarray(problem.grid.axes[0].coeffs(np.eye(n), axis=0)),
         }
-    return plan["workspace"]
+    return c
 
 
 def workspace(problem, params, opts):
