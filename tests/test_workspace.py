@@ -444,7 +444,7 @@ def test_lu_factor_kernel_matches_lapack_getrf(compiled):
 def test_rcond_kernel_matches_lapack_gecon(compiled):
     # references: LAPACK gecon on the same factors (the same 1-norm estimator, "FORTRAN
     # codes for estimating the one-norm of a real or complex matrix", ACM TOMS 14 (1988) 381,
-    # doi:10.1145/50063.214386), and the exact reciprocal condition number
+    # doi:10.1145/50063.214386, details from memory), and the exact reciprocal condition number
     # 1 / (||M||_1 ||M^-1||_1) from numpy, which the estimate never undercuts
     import scipy.linalg as sla
 

@@ -315,11 +315,14 @@ def _rcond_py(lu, anorm):
 
     ``||M^{-1}||_1`` is estimated by the iteration of "FORTRAN codes for estimating the
     one-norm of a real or complex matrix, with applications to condition estimation",
-    ACM Trans. Math. Softw. 14 (1988) 381, doi:10.1145/50063.214386 (Algorithm 4.1, the
-    scheme of LAPACK ``lacn2``): power-like steps on ``sign`` vectors, at most five, then
-    the alternating-sign test vector; the estimate is a lower bound, almost always exact.
-    Returns ``1 / (anorm * est)``, and 0 for a zero, non-finite or overflowing estimate
-    (``gecon`` guards overflow by scaling; here it means singular to working precision).
+    ACM Trans. Math. Softw. 14 (1988) 381, doi:10.1145/50063.214386 (citation details from
+    memory), the scheme of LAPACK ``lacn2``: power-like steps on ``sign`` vectors, at most
+    five, then the alternating-sign test vector.  Every candidate is a lower bound of the
+    norm; this keeps the largest (``lacn2`` keeps the last, which differs only when an
+    iteration stops on a decrease).  The tests compare it with ``gecon`` and with the exact
+    norm.  Returns ``1 / (anorm * est)``, and 0 for a zero, non-finite or overflowing
+    estimate (``gecon`` guards overflow by scaling; here it means singular to working
+    precision).
     """
     n = lu.shape[0]
     if n == 0 or not anorm > 0:
