@@ -539,12 +539,12 @@ def test_concurrent_solves_of_one_problem_match_sequential_ones():
 
     problem = bratu(17, 1.0)
     lams = [0.5, 1.0, 2.0, 3.0]
-    ref = {lam: sb.solve(problem, 0.0, params={"lam": lam}).state for lam in lams}
+    ref = {lam: sb.solve(problem, 0.0, params={"lam": lam}, tol=1e-8).state for lam in lams}
     bad = []
 
     def work(lam):
         for _ in range(60):
-            res = sb.solve(problem, 0.0, params={"lam": lam})
+            res = sb.solve(problem, 0.0, params={"lam": lam}, tol=1e-8)
             if not np.array_equal(res.state, ref[lam]):
                 bad.append((lam, res.converged))
 
@@ -566,6 +566,6 @@ def test_used_problem_pickles_without_its_buffers():
     import pickle
 
     problem = bratu(14, 1.0)
-    a = sb.solve(problem, 0.0)
-    b = sb.solve(pickle.loads(pickle.dumps(problem)), 0.0)
+    a = sb.solve(problem, 0.0, tol=1e-8)
+    b = sb.solve(pickle.loads(pickle.dumps(problem)), 0.0, tol=1e-8)
     np.testing.assert_array_equal(a.state, b.state)
