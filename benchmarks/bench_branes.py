@@ -604,7 +604,55 @@ def part_a(quick, rounds):
         "pointwise_calls_per_solve": clock.calls["pointwise"] / reps,
         "ms_per_pointwise_call": 1e3 * e["pointwise"] / max(1, clock.calls["pointwise"]),
     }
+    out["evaluation_ms"] = evaluation_cost(bgp, 3 if quick else 9)
     return out
+
+
+def evaluation_cost(bg, rounds):
+    """Milliseconds per evaluation of a brane's equations by batch size, type and point kind.
+
+    One evaluation of the generic Einstein evaluator at the certified solution of ``bg``,
+    called directly (``bg._equations`` at interior points, ``bg._horizon_rows`` at the
+    horizon): one point or all of them, one slot or the complex-step batch of the
+    linearisation, double or long double.  Interleaved medians.  If the cost barely moves
+    with the size of the batch, it is per operation (Python and numpy call overhead), not
+    per point.
+    """
+    from spectral_bulk.newton._problem import Namespace
+
+    sol = bg._last
+    pr = sol.problem
+    dv = pr.derivatives(sol.state)  # (nf, na, n)
+    nf, na, n = dv.shape
+    nslot = nf * na + 1
+    z = pr.grid.coords[bg.coord]
+    p = Namespace(sol.params, "parameter")
+
+    def coords(zz):
+        return Namespace({bg.coord: zz}, "coordinate")
+
+    def slots(v):
+        return np.broadcast_to(v[:, :, None, :], v.shape[:2] + (nslot, v.shape[-1])).astype(complex)
+
+    mid = slice(n // 2, n // 2 + 1)
+    cases = {
+        f"interior, double, 1 slot x {n} points": (coords(z), dv),
+        "interior, double, 1 slot x 1 point": (coords(z[mid]), dv[..., mid]),
+        f"interior, complex, {nslot} slots x {n} points": (coords(z), slots(dv)),
+        f"interior, long double, 1 slot x {n} points": (coords(z.astype(np.longdouble)),
+                                                        dv.astype(np.longdouble)),
+        "horizon, double, 1 slot x 1 point": (None, dv[..., -1:]),
+        f"horizon, complex, {nslot} slots x 1 point": (None, slots(dv[..., -1:])),
+    }
+    funcs = {}
+    for name, (c, vals) in cases.items():
+        f = pr._namespace(vals)
+        if c is None:
+            funcs[name] = (lambda f=f: bg._horizon_rows(None, f, p))
+        else:
+            funcs[name] = (lambda c=c, f=f: bg._equations(c, f, p))
+    timing = _common.interleaved(funcs, rounds, min_sample=0.02, warmup=True)
+    return {name: 1e3 * summary(t["samples"])["median"] for name, t in timing.items()}
 
 
 # =============================================================================
@@ -765,6 +813,10 @@ def report(a, b):
         f"{bd['ms_per_pointwise_call']:.1f} ms each), linear algebra {bd['linear_algebra']:.1f}%, "
         f"observables+certificate besides the refinement's residuals {bd['observables_and_certificate']:.0f}%, "
         f"rest {bd['rest']:.0f}%")
+    log("one evaluation of the equations (ms, at the certified solution; per operation, not per point, "
+        "when the sizes barely matter):")
+    for name, v in a["evaluation_ms"].items():
+        log(f"  {name:44s} {v:6.2f}")
     log()
     _common.banner("b. Family of 100 points in lam/T at k/T = 1 (QLatticeBrane.follow with observables)")
     tb = b["timing"]
