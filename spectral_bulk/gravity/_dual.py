@@ -70,11 +70,9 @@ class Dual:
         return np.exp(self * np.log(base))
 
     def __array_ufunc__(self, ufunc, method, *inputs, **kwargs):
-        if method != "__call__" or kwargs.get("out") is not None:
-            return NotImplemented
-        if ufunc in _BINARY:
-            x, y = inputs
-            return _BINARY[ufunc](x, y)
+        out = binary_ufunc_call(_BINARY, ufunc, method, inputs, kwargs)
+        if out is not None:
+            return out
         rule = _UNARY.get(ufunc)
         if rule is None:
             return NotImplemented
@@ -103,6 +101,16 @@ _UNARY = {
     np.square: lambda a: (a * a, 2 * a),
     np.reciprocal: lambda a: (1 / a, -1 / (a * a)),
 }
+
+def binary_ufunc_call(table, ufunc, method, inputs, kwargs):
+    """The start of ``__array_ufunc__`` shared by :class:`Dual` and ``Jet``: ``NotImplemented``
+    for anything but a plain call (no ``out=``), the rule of ``table`` (:func:`binary_ufuncs`)
+    for a binary ufunc, else ``None`` (the caller handles unary ufuncs)."""
+    if method != "__call__" or kwargs.get("out") is not None:
+        return NotImplemented
+    rule = table.get(ufunc)
+    return None if rule is None else rule(*inputs)
+
 
 def binary_ufuncs(cls):
     """The binary numpy ufuncs of a number type ``cls`` as its operators, whichever operand

@@ -28,7 +28,7 @@ import math
 
 import numpy as np
 
-from ._dual import binary_ufuncs
+from ._dual import binary_ufunc_call, binary_ufuncs
 from ._series import PrecisionError, Series, keeps_zero_pattern
 
 __all__ = ["Jet", "coordinate_jets", "jet_from_derivatives"]
@@ -315,11 +315,9 @@ class Jet:
         return out
 
     def __array_ufunc__(self, ufunc, method, *inputs, **kwargs):
-        if method != "__call__" or kwargs.get("out") is not None:
-            return NotImplemented
-        if ufunc in _BINARY:
-            x, y = inputs
-            return _BINARY[ufunc](x, y)
+        out = binary_ufunc_call(_BINARY, ufunc, method, inputs, kwargs)
+        if out is not None:
+            return out
         (x,) = inputs
         if ufunc in _DIRECT:
             return _DIRECT[ufunc](x)

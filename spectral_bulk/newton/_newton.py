@@ -337,8 +337,8 @@ def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False, f
             rnorms.append(rnorm)
             if status == 2:
                 return finish(2, u, A=A, F=F, solver=solver)
-            fmt["why"] = step.why  # pragma: no cover - defensive (status 7)
-            return finish(7, u, A=A, F=F)  # pragma: no cover
+            fmt["why"] = step.why  # status 7: the linear solver failed (defensive)
+            return finish(7, u, A=A, F=F)
         rnorms.append(rnorm)
         if not ndx < math.inf:  # NaN or inf: dx is not finite
             fmt["why"] = "non-finite Newton update"
