@@ -501,6 +501,29 @@ def test_small_step_kernel_matches_its_parts(compiled):
     assert fun(A, DT, R, F, u, problem.scales, J2, w2, rs2, piv2, dx2, 1e-12)[0] is False
 
 
+@pytest.mark.parametrize("compiled", [True, False])
+def test_certificate_kernel_matches_generic_parts(compiled):
+    # the fused certificate (tails and backward error in one call) against the generic
+    # workspace's numpy routes: the grid's DCT tails and residual_norm
+    problem, A, F, u = _random_case(5)
+    nf, n = problem.nfields, problem.grid.size
+    C = np.ascontiguousarray(problem.grid.axes[0].coeffs(np.eye(n), axis=0))
+    tails = np.empty(nf)
+    fun = D.certificate if compiled else K._certificate_py
+    r = fun(A, problem.row_sums(), F, u, problem.scales, C, tails)
+    gen = GenericWorkspace(problem, {}, NewtonOptions().validated())
+    tails_r, r_r = gen.certificate(u, F, A)
+    np.testing.assert_allclose(tails, tails_r, rtol=1e-9, atol=1e-16)
+    assert r == pytest.approx(r_r, rel=1e-13)
+    F2 = F.copy()
+    F2[3] = np.inf
+    assert np.isnan(fun(A, problem.row_sums(), F2, u, problem.scales, C, tails))
+    assert np.isnan(gen.certificate(u, F2, A)[1])
+    A[0, 1, 2, 5] = np.nan
+    assert np.isnan(fun(A, problem.row_sums(), F, u, problem.scales, C, tails))
+    np.testing.assert_allclose(tails, tails_r, rtol=1e-9, atol=1e-16)  # the tails do not need A
+
+
 @pytest.mark.parametrize("complex_out", [False, True])
 def test_dense_real_residual_matches_generic(complex_out):
     # the dense workspace's residual (the state alone, in real arithmetic) against the

@@ -462,9 +462,9 @@ class DomainWall:
             out = object.__new__(WallSolution)
             out.__dict__.update(dict(regular=False, converged=False, certified=False, status=-1,
                                      observables={}, certificate_failures=["singular flow"],
-                                     message=f"no critical point of V in the direction of the source "
-                                             f"(lam = {lam}): the homogeneous flow is singular in the IR",
                                      params={"lam": lam}))
+            out.message = (f"no critical point of V in the direction of the source (lam = {lam}): "
+                           "the homogeneous flow is singular in the IR")
             return out
         Z = pr.grid.axes[0].domain[1]
         res = None

@@ -27,7 +27,40 @@ _COMPILED = {}
 # Reassociation lets LLVM vectorise the sums and maxima over the (possibly cache-sized)
 # Jacobian: they then differ from the reference by rounding only.  No other fast-math
 # flag is set, so NaN and inf keep their meaning (the finiteness checks rely on it).
-_FASTMATH = {"_prepare_dense_py": {"reassoc"}}
+_FASTMATH = {"_prepare_dense_py": {"reassoc"}, "_check_norms_py": {"reassoc"}}
+
+
+def _check_norms_py(A, R, F, u, scales, w):
+    """The checks and norms of :func:`_prepare_dense_py`: ``(finite, rnorm)``, and ``w``."""
+    nf, _, na, n = A.shape
+    for r in range(nf * n):
+        if not np.isfinite(F[r]):
+            return False, np.nan
+    for j in range(nf):
+        for i in range(nf):
+            for k in range(na):
+                for p in range(n):
+                    if not np.isfinite(A[j, i, k, p]):
+                        return False, np.nan
+    for i in range(nf):
+        m = scales[i]
+        for p in range(n):
+            a = abs(u[i * n + p])
+            if a > m:
+                m = a
+        w[i] = m
+    rnorm = 0.0
+    for j in range(nf):
+        for p in range(n):
+            s = 0.0
+            for i in range(nf):
+                for k in range(na):
+                    s += abs(A[j, i, k, p]) * w[i] * R[k, p]
+            f = abs(F[j * n + p])
+            r = f / s if s > 0 else f
+            if r > rnorm:
+                rnorm = r
+    return True, rnorm
 
 
 def _prepare_dense_py(A, DT, R, F, u, scales, J, w, rscale, assemble):
@@ -66,36 +99,12 @@ def _prepare_dense_py(A, DT, R, F, u, scales, J, w, rscale, assemble):
     anorm : float
         1-norm of the equilibrated Jacobian (for the condition estimate).
     """
-    nf, _, na, n = A.shape
-    for r in range(nf * n):
-        if not np.isfinite(F[r]):
-            return False, np.nan, np.nan
-    for j in range(nf):
-        for i in range(nf):
-            for k in range(na):
-                for p in range(n):
-                    if not np.isfinite(A[j, i, k, p]):
-                        return False, np.nan, np.nan
-    for i in range(nf):
-        m = scales[i]
-        for p in range(n):
-            a = abs(u[i * n + p])
-            if a > m:
-                m = a
-        w[i] = m
-    rnorm = 0.0
-    for j in range(nf):
-        for p in range(n):
-            s = 0.0
-            for i in range(nf):
-                for k in range(na):
-                    s += abs(A[j, i, k, p]) * w[i] * R[k, p]
-            f = abs(F[j * n + p])
-            r = f / s if s > 0 else f
-            if r > rnorm:
-                rnorm = r
+    finite, rnorm = _check_norms_py(A, R, F, u, scales, w)
+    if not finite:
+        return False, np.nan, np.nan
     if not assemble:
         return True, rnorm, np.nan
+    nf, _, na, n = A.shape
     # column by column of the Fortran-ordered J: contiguous inner loops over one block
     # column (in cache while it is built and its row maxima gathered); one more pass over
     # J scales the rows
@@ -491,6 +500,17 @@ def _after_trial_py(rows, inv_h, Ft, At, lu, piv, rscale, dx, lam, w, trial, sca
     return True, nbar, dd, _scaled_norm_py(dxbar, wt)
 
 
+def _certificate_py(A, R, F, u, scales, C, tails):
+    """The certificate's two measures in one call (``dispatchers().certificate``).
+
+    Fills ``tails`` as :func:`_chebyshev_tails_py` and returns the backward error of
+    :func:`_prepare_dense_py` (NaN when ``F`` or ``A`` is not finite).
+    """
+    _chebyshev_tails_py(u, C, scales, tails)
+    finite, rnorm = _check_norms_py(A, R, F, u, scales, np.empty(scales.shape[0]))
+    return rnorm if finite else np.nan
+
+
 def _compiled(fun):
     """The numba-compiled ``fun`` (compiled once per process, cached on disk).
 
@@ -517,7 +537,8 @@ _KERNELS = {"prepare_dense": "_prepare_dense_py", "newton_update": "_newton_upda
             "scaled_norm": "_scaled_norm_py", "damping_norms": "_damping_norms_py",
             "field_weights": "_field_weights_py", "chebyshev_tails": "_chebyshev_tails_py",
             "lu_solve": "_lu_solve_py", "pivot_ratio": "_pivot_ratio_py", "rcond": "_rcond_py",
-            "lu_factor": "_lu_factor_py", "small_step": "_small_step_py"}
+            "lu_factor": "_lu_factor_py", "small_step": "_small_step_py",
+            "certificate": "_certificate_py"}
 _DISPATCH = None
 
 

@@ -288,15 +288,14 @@ def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False, f
 
     def finish(status, state, A=None, F=None, solver=None):
         nonlocal nfev
-        tails = ws.tails(state)
-        tail = dict(zip(problem.fields, tails.tolist()))
-        worst = max(tail.values())
         if F is None:
             F = final_residual(state) if final_residual is not None else None
             if F is None:
                 F = ws.residual(state)
             nfev += 1
-        r = ws.backward_error(F, A, state) if A is not None and np.isfinite(F).all() else np.nan
+        tails, r = ws.certificate(state, F, A)
+        tail = dict(zip(problem.fields, tails.tolist()))
+        worst = max(tail.values())
         if status == 0:
             if not r <= tol:
                 status = 6
@@ -306,7 +305,7 @@ def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False, f
         rcond = solver.rcond if solver is not None else np.nan
         fmt.update(residual=r, tail=worst, rcond=rcond,
                    update=unorms[-1] if unorms else np.nan)
-        res = SolveResult(problem, state, params, status=status, message=MESSAGES[status].format(**fmt),
+        res = SolveResult(problem, state, params, status=status, message=(MESSAGES[status], fmt),
                           iterations=njev, residual=r, update=fmt["update"], tail=tail,
                           condition=rcond, linear_solver=getattr(solver, "kind", None), nfev=nfev,
                           njev=njev, residual_norms=rnorms, update_norms=unorms, damping=damping,

@@ -58,7 +58,7 @@ class SolveResult:
         self.params = dict(params)
         self.fields = problem.field_dict(self.state)
         self.status = status
-        self.message = message
+        self._message = message  # a str, or (template, values) formatted on first access
         self.converged = status == 0
         self.iterations = iterations
         self.nfev = nfev
@@ -74,6 +74,17 @@ class SolveResult:
         self.tol = tol
         self.linear_solver = linear_solver
         self.extra = extra
+
+    @property
+    def message(self):
+        m = self._message
+        if type(m) is tuple:  # formatting costs microseconds; most solves in a scan are not read
+            m = self._message = m[0].format(**m[1])
+        return m
+
+    @message.setter
+    def message(self, value):
+        self._message = value
 
     # aliases used across the package (one naming scheme: nit, success)
     @property

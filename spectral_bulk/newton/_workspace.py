@@ -33,7 +33,8 @@ callers need):
     the scaled update norm; ``ws.damping_norms(a, b, lam, w)`` gives
     ``(norm(a), norm(a - (1 - lam) b))`` at once;
 ``ws.backward_error(F, A, u) -> float`` and ``ws.tails(u) -> (nfields,) ndarray``
-    the certificate's residual and spectral tails.
+    the certificate's residual and spectral tails; ``ws.certificate(u, F, A)`` gives both
+    at once (the backward error NaN when ``A`` is ``None`` or ``F`` is not finite).
 """
 
 import math
@@ -183,6 +184,10 @@ class GenericWorkspace:
         pr = self.problem
         return pr.grid.tail(pr.split(u), pr.scales)
 
+    def certificate(self, u, F, A):
+        r = self.backward_error(F, A, u) if A is not None and np.isfinite(F).all() else np.nan
+        return self.tails(u), r
+
 
 class DenseWorkspace(GenericWorkspace):
     """Preallocated one-dimensional dense workspace (see the module notes)."""
@@ -329,8 +334,8 @@ class DenseWorkspace(GenericWorkspace):
             return self.problem.residual(u, self.params)
         c = self.c
         ev = c["real"]
-        nf, na, n = c["nf"], c["na"], c["n"]
-        ev["buf"][:, :, 0, :] = (u.reshape(nf, n) @ c["dstack"]).reshape(nf, na, n)
+        nf, n = c["nf"], c["n"]
+        np.matmul(u.reshape(nf, n), c["dstack"], out=ev["flat"])  # D^k u_f, all at once
         try:
             rows = self._rows(ev)
         except ProblemDefinitionError:
@@ -361,6 +366,14 @@ class DenseWorkspace(GenericWorkspace):
         out = np.empty(self.c["nf"])
         self.k.chebyshev_tails(u, self.c["coeffs"], self.problem.scales, out)
         return out
+
+    def certificate(self, u, F, A):
+        if self.generic or A is None:
+            return super().certificate(u, F, A)
+        c = self.c
+        tails = np.empty(c["nf"])
+        rnorm = self.k.certificate(A, c["rowsums"], F, u, self.problem.scales, c["coeffs"], tails)
+        return tails, rnorm
 
 
 def _evaluation_set(problem, plan, buf, real):
@@ -404,6 +417,7 @@ def _cached(problem):
         nslot = nf * na + 1
         cs = _evaluation_set(problem, plan, np.zeros((nf, na, nslot, n), dtype=complex), False)
         real = _evaluation_set(problem, plan, np.zeros((nf, na, 1, n)), True)
+        real["flat"] = real["buf"].reshape(nf, na * n)  # a view: the layout of `u_f @ dstack`
         c = local.c = {
             "nf": nf, "na": na, "n": n, "cs": cs, "real": real, "buf": cs["buf"],
             "dstack": plan["dstack"], "coords": plan["coords"],
