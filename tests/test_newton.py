@@ -301,6 +301,12 @@ def test_status_linear_solver_failure(monkeypatch, workspace, small):
 
     monkeypatch.setattr(kernels, "newton_update", broken_update)
     monkeypatch.setattr(kernels, "small_step", broken_small_step)
+    # the compiled iteration (small systems) runs as its plain body, on the broken step:
+    # it hands the non-finite correction back to the Python loop, which reports it
+    import spectral_bulk.newton._kernels as K
+
+    monkeypatch.setattr(kernels, "drive", K._drive_py)
+    monkeypatch.setattr(K, "_small_step_py", broken_small_step)
     if not small:  # the LAPACK path of the dense step
         monkeypatch.setattr(W, "_SMALL_LU", 0)
     with pytest.warns(ConvergenceWarning, match="linear solver"):

@@ -7,6 +7,8 @@ solution to rounding.  The exact solutions used are those of ``tests/problems.py
 (Gelfand-Bratu closed form, common practice).
 """
 
+import warnings
+
 import numpy as np
 import pytest
 
@@ -192,6 +194,82 @@ def test_damped_newton_stays_in_the_real_domain(ws):
     assert np.all(res.fields["u"] > 0)
     assert res.status in (0, 5)
     assert np.abs(problem.residual(res.state)).max() < 1e-8
+
+
+# ------------------------------------------------- the compiled iteration
+def _drive_cases():
+    sqrt_problem = sb.Problem(sb.Chebyshev(14, (0.0, 1.0)), ["u"],
+                              lambda c, f, p: f.u_xx - 20 * np.sqrt(f.u),
+                              {"left": lambda c, f, p: [f.u - 1.0], "right": lambda c, f, p: [f.u - 1.0]})
+    coupled8, _ = coupled(8)
+    return {
+        # damping with reductions and the prediction (upper branch from a poor guess)
+        "bratu_upper": (bratu(20, 3.0), lambda x: 8 * x * (1 - x), {}),
+        # non-finite trial residuals (the square root leaves its domain): halved steps
+        "real_domain": (sqrt_problem, lambda x: 1.0 + 0.9 * np.sin(np.pi * x), {"tail_tol": 1e-6}),
+        "coupled_24_unknowns": (coupled8, lambda x: {"u": 1 - x**2 / 3, "v": 0.4 * (1 + x), "w": x}, {}),
+        "diverges": (bratu(20, 4.0), 0.0, {"max_iter": 200}),
+        "iteration_limit": (bratu(20, 3.0), 0.0, {"max_iter": 2}),
+    }
+
+
+@pytest.mark.parametrize("case", list(_drive_cases()))
+def test_compiled_iteration_is_the_python_loop(monkeypatch, case):
+    # small 1-D problems run the damped iteration in one kernel (_kernels._drive_py); the
+    # Python loop on the same workspace (drive disabled) is its reference: the same
+    # arithmetic in the same order, so every record and the state must agree exactly
+    problem, guess, kw = _drive_cases()[case]
+    calls = []
+    drive = DenseWorkspace.drive
+
+    def spy(self, *a):
+        calls.append(1)
+        return drive(self, *a)
+
+    monkeypatch.setattr(DenseWorkspace, "drive", spy)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ConvergenceWarning)
+        a = sb.solve(problem, guess, **kw)
+        monkeypatch.setattr(DenseWorkspace, "drive", lambda self, *a: None)
+        b = sb.solve(problem, guess, **kw)
+        monkeypatch.setattr(DenseWorkspace, "drive", spy)
+        monkeypatch.setattr(K.dispatchers(), "drive", K._drive_py)  # the plain body
+        c = sb.solve(problem, guess, **kw)
+    assert len(calls) == 2  # the compiled and the plain drive ran
+    assert a.status == b.status == c.status and a.message == b.message
+    for x in (a, c):
+        assert (x.iterations, x.nfev, x.njev) == (b.iterations, b.nfev, b.njev)
+        assert x.damping == b.damping
+    assert a.update_norms == b.update_norms and a.residual_norms == b.residual_norms
+    np.testing.assert_array_equal(a.state, b.state)
+    assert a.residual == b.residual or np.isnan(a.residual) and np.isnan(b.residual)
+    assert a.condition == b.condition and a.tail == b.tail
+    # the plain body: without the compiled kernels' reassociated sums, equal to rounding
+    np.testing.assert_allclose(c.state, b.state, rtol=0, atol=1e-12 * max(1, np.abs(b.state).max()))
+    np.testing.assert_allclose(c.update_norms, b.update_norms, rtol=1e-8, atol=1e-14)
+
+
+def test_compiled_iteration_hands_back_when_the_batch_stops_working():
+    # callbacks that take the complex-step batch for three evaluations and then refuse
+    # it: the compiled iteration stops at the top of its iteration and the Python loop
+    # goes on with the generic path; the answer is the generic workspace's
+    calls = []
+
+    def eqs(c, f, p):
+        if f.u.ndim == 2:
+            calls.append(1)
+            if len(calls) > 3:
+                raise ValueError("no batches any more")
+        return [f.u_xx + p.lam * np.exp(f.u)]
+
+    problem = sb.Problem(sb.Chebyshev(20, (0.0, 1.0)), ["u"], eqs,
+                         {"left": dirichlet_zero, "right": dirichlet_zero}, {"lam": 3.0})
+    a = sb.solve(problem, lambda x: 8 * x * (1 - x), tail_tol=1e-6)  # (20 points: tail ~1e-9)
+    b = sb.solve(bratu(20, 3.0), lambda x: 8 * x * (1 - x), options=NewtonOptions(workspace="generic",
+                                                                                 tail_tol=1e-6))
+    assert a.converged and len(calls) > 3 and problem._batched is False
+    assert a.iterations == b.iterations and a.damping == b.damping
+    np.testing.assert_allclose(a.state, b.state, rtol=0, atol=1e-12 * np.abs(b.state).max())
 
 
 # --------------------------------------------------------------- kernels

@@ -511,6 +511,152 @@ def _certificate_py(A, R, F, u, scales, C, tails):
     return rnorm if finite else np.nan
 
 
+# Exit codes of _drive_py; the indices of its scalar state S and counters I.
+DRIVE_EVALUATE, DRIVE_STEP_CONVERGED, DRIVE_TRIAL_CONVERGED, DRIVE_LAMBDA_MIN, DRIVE_MAX_ITER, \
+    DRIVE_HAND_BACK = 1, 2, 3, 4, 5, 6
+S_LAM, S_NDX, S_NDX_PREV, S_LAM_PREV, S_ANORM, S_NNEW, S_LAM_TOP, S_TOL, S_LAMBDA_MIN, \
+    S_MIN_RATIO, S_H = range(11)
+I_PHASE, I_NJEV, I_NFEV, I_NR, I_NU, I_ND, I_CUR, I_MAX_ITER, I_HAS_PREV, I_REDUCED, I_TOP = range(11)
+#: Rows of the drive's vector store ``V`` (``size`` each): the state and the trial point, and
+#: the residuals there, are pairs whose roles swap when a trial point is accepted
+#: (``V[I_CUR]`` is the state, ``V[4 + I_CUR]`` its residual).
+V_DX, V_DXBAR, V_RSCALE, V_DXBAR_PREV = 2, 3, 6, 7
+
+
+def _min_py(a, b):
+    """Python's ``min(a, b)`` for floats: ``b`` only when ``b < a`` (NaN handling included)."""
+    return b if b < a else a
+
+
+def _drive_py(rows, V, Ab, J, piv, W, H, S, I, DT, R, scales, dstack, buf):
+    """The damped Newton iteration of :func:`~spectral_bulk.newton._newton._newton`, compiled.
+
+    For small one-dimensional problems the Python loop costs more than its arithmetic.
+    This kernel runs the same algorithm (the same steps, damping factors, tests and
+    records, in the same order) and returns to Python only to have the callbacks
+    evaluated at a trial point (``DRIVE_EVALUATE``: the complex-step batch ``buf`` holds
+    it; call again with the rows) or when it ends.  State between calls lives in the
+    arrays:
+
+    ``V`` (8, size)
+        state / trial point (rows ``I[I_CUR]`` / ``1 - I[I_CUR]``), the Newton correction,
+        the simplified correction, residuals at the state / trial point (rows
+        ``4 + cur`` / ``5 - cur``), row scales of ``J``, the previous simplified correction.
+    ``Ab`` (2, nf, nf, na, n)
+        pointwise coefficients at the state (``Ab[cur]``) and at the trial point.
+    ``J, piv``
+        the LU factors of the Jacobian at the state (:func:`_small_step_py`).
+    ``W`` (2, nf)
+        field weights at the state, and scratch.
+    ``H`` (3, max_iter + 1)
+        the records: residual norms, update norms, damping factors (counts ``I[I_NR]``,
+        ``I[I_NU]``, ``I[I_ND]``).
+    ``S``, ``I``
+        scalars (``S_*``, ``I_*`` indices); ``I[I_PHASE]`` is 0 at the top of an iteration
+        (the residual and coefficients of the state are in place) and 1 after an evaluation.
+
+    Exit codes: ``DRIVE_STEP_CONVERGED`` (the state plus the Newton correction is the
+    answer), ``DRIVE_TRIAL_CONVERGED`` (the accepted trial point, now the state, plus the
+    simplified correction), ``DRIVE_LAMBDA_MIN`` (diverges), ``DRIVE_MAX_ITER`` and
+    ``DRIVE_HAND_BACK``: something the compiled path leaves to the Python loop (a
+    non-finite residual or coefficient, a factorisation that needs the condition
+    estimate, a non-finite correction), which goes on from the top of the iteration:
+    ``I[I_TOP]`` holds the counters there (``njev, nr, nu, nd`` in ``I[I_TOP:]``...) and
+    ``S[S_LAM_TOP]`` the damping factor.
+    """
+    size = V.shape[1]
+    tol, lambda_min, min_ratio = S[S_TOL], S[S_LAMBDA_MIN], S[S_MIN_RATIO]
+    cur = I[I_CUR]
+    lam = S[S_LAM]
+    ndx = S[S_NDX]
+    reduced = I[I_REDUCED] != 0
+    evaluated = I[I_PHASE] == 1
+    while True:
+        if evaluated:  # the callbacks were evaluated at the trial point: the damping test
+            evaluated = False
+            I[I_NFEV] += 1
+            Ft, At, trial = V[5 - cur], Ab[1 - cur], V[1 - cur]
+            _split_rows_py(rows, 1.0 / S[S_H], Ft, At)
+            finite = True
+            for r in range(size):
+                if not np.isfinite(Ft[r]):
+                    finite = False
+                    break
+            retry = True
+            if not finite:
+                lam /= 2
+                reduced = True
+            else:
+                dxbar = V[V_DXBAR]
+                _lu_solve_py(J, piv, V[V_RSCALE], Ft, dxbar)
+                nbar, dd = _damping_norms_py(dxbar, V[V_DX], lam, W[0])
+                _field_weights_py(trial, scales, W[1])
+                nnew = _scaled_norm_py(dxbar, W[1])
+                theta = nbar / ndx
+                mu_p = 0.5 * ndx * lam**2 / dd if dd > 0 else np.inf
+                if theta >= 1 - lam / 4:
+                    lam = _min_py(mu_p, lam / 2)
+                    reduced = True
+                else:
+                    lam_new = _min_py(1.0, mu_p)
+                    if lam_new >= 4 * lam and lam < 1 and not reduced:
+                        lam = lam_new
+                        reduced = True  # one enlargement per iteration: no ping-pong
+                    else:
+                        retry = False
+            if not retry:  # accepted: the trial point becomes the state
+                H[2, I[I_ND]] = lam
+                I[I_ND] += 1
+                cur = 1 - cur
+                I[I_CUR] = cur
+                S[S_LAM] = lam
+                if lam == 1.0 and nnew <= tol:
+                    H[1, I[I_NU]] = nnew
+                    I[I_NU] += 1
+                    S[S_NNEW] = nnew
+                    return DRIVE_TRIAL_CONVERGED
+                S[S_NDX_PREV], S[S_LAM_PREV] = ndx, lam
+                I[I_HAS_PREV] = 1
+                for r in range(size):
+                    V[V_DXBAR_PREV, r] = dxbar[r]
+                continue  # the next iteration
+        else:  # the top of an iteration: the Newton correction at the state
+            I[I_TOP], I[I_TOP + 1], I[I_TOP + 2], I[I_TOP + 3] = I[I_NJEV], I[I_NR], I[I_NU], I[I_ND]
+            S[S_LAM_TOP] = lam
+            if I[I_NJEV] >= I[I_MAX_ITER]:
+                return DRIVE_MAX_ITER
+            u, F, A = V[cur], V[4 + cur], Ab[cur]
+            finite, rnorm, anorm, info, ratio, ndx = _small_step_py(A, DT, R, F, u, scales, J, W[0],
+                                                                    V[V_RSCALE], piv, V[V_DX], min_ratio)
+            if not finite or info != 0 or ratio <= min_ratio or not ndx < np.inf:
+                return DRIVE_HAND_BACK
+            I[I_NJEV] += 1
+            H[0, I[I_NR]] = rnorm
+            H[1, I[I_NU]] = ndx
+            I[I_NR] += 1
+            I[I_NU] += 1
+            S[S_ANORM], S[S_NDX] = anorm, ndx
+            if ndx <= tol:
+                H[2, I[I_ND]] = 1.0
+                I[I_ND] += 1
+                return DRIVE_STEP_CONVERGED
+            if I[I_HAS_PREV]:
+                nprev, denom = _damping_norms_py(V[V_DXBAR_PREV], V[V_DX], 0.0, W[0])
+                denom *= ndx
+                mu = S[S_NDX_PREV] * nprev / denom * S[S_LAM_PREV] if denom > 0 else 1.0
+                lam = _min_py(1.0, mu)
+            reduced = False
+        # a trial point with the current damping factor
+        if lam < lambda_min:
+            S[S_LAM] = lam
+            return DRIVE_LAMBDA_MIN
+        _trial_point_py(V[cur], lam, V[V_DX], V[1 - cur], dstack, S[S_H], buf)
+        S[S_LAM] = lam
+        I[I_REDUCED] = 1 if reduced else 0
+        I[I_PHASE] = 1
+        return DRIVE_EVALUATE
+
+
 def _compiled(fun):
     """The numba-compiled ``fun`` (compiled once per process, cached on disk).
 
@@ -538,7 +684,7 @@ _KERNELS = {"prepare_dense": "_prepare_dense_py", "newton_update": "_newton_upda
             "field_weights": "_field_weights_py", "chebyshev_tails": "_chebyshev_tails_py",
             "lu_solve": "_lu_solve_py", "pivot_ratio": "_pivot_ratio_py", "rcond": "_rcond_py",
             "lu_factor": "_lu_factor_py", "small_step": "_small_step_py",
-            "certificate": "_certificate_py"}
+            "certificate": "_certificate_py", "drive": "_drive_py"}
 _DISPATCH = None
 
 

@@ -18,6 +18,7 @@ import numpy as np
 
 from .._utils import EPS, emit_user_level_warning, validate_tol
 from ..exceptions import ConvergenceError, ConvergenceWarning, ProblemDefinitionError
+from . import _kernels as _K
 from ._linalg import assemble_dense
 from ._problem import Problem
 from ._result import SolveResult
@@ -317,7 +318,34 @@ def _newton(problem, u, params, opts, first_is_input=False, keep_factor=False, f
     lam = opts.lambda_init
     prev = None  # (norm dx, dxbar, lam) of the previous iteration
     pending = None  # linearisation of the accepted trial point, if any
-    for _ in range(opts.max_iter):
+    drive = getattr(ws, "drive", None) if opts.damping and linearize_trial else None
+    if drive is not None:
+        # small one-dimensional problems: the same iteration, compiled (_kernels._drive_py);
+        # what it hands back, the loop below goes on with
+        F, A = ws.linearize(u)
+        nfev += 1
+        d = drive(u, F, A, lam)
+        if d is None:
+            pending = (F, A)
+        else:
+            nfev += d.nfev
+            njev = d.njev
+            rnorms += d.rnorms
+            unorms += d.unorms
+            damping += d.damping
+            code = d.code
+            if code == _K.DRIVE_STEP_CONVERGED:
+                return finish(0, d.u + d.dx, A=d.A, solver=d.solver)
+            if code == _K.DRIVE_TRIAL_CONVERGED:
+                return finish(0, d.u + d.dxbar, A=d.A, solver=d.solver)
+            if code == _K.DRIVE_LAMBDA_MIN:
+                fmt["update"] = d.ndx
+                return finish(4, d.u, A=d.A, F=d.F, solver=d.solver)
+            if code == _K.DRIVE_MAX_ITER:
+                fmt["update"] = unorms[-1]
+                return finish(1, d.u, A=d.A_step, solver=d.solver)
+            u, pending, lam, prev = d.u, (d.F, d.A), d.lam, d.prev  # DRIVE_HAND_BACK
+    for _ in range(opts.max_iter - njev):
         if pending is not None:
             F, A = pending
             pending = None

@@ -32,6 +32,9 @@ callers need):
 ``ws.norm(dx, w) -> float``
     the scaled update norm; ``ws.damping_norms(a, b, lam, w)`` gives
     ``(norm(a), norm(a - (1 - lam) b))`` at once;
+``ws.drive(u, F, A, lam) -> Drive or None``
+    optional: the whole damped iteration from ``u`` in compiled code (:class:`Drive`);
+    ``None`` where it does not apply;
 ``ws.backward_error(F, A, u) -> float`` and ``ws.tails(u) -> (nfields,) ndarray``
     the certificate's residual and spectral tails; ``ws.certificate(u, F, A)`` gives both
     at once (the backward error NaN when ``A`` is ``None`` or ``F`` is not finite).
@@ -45,11 +48,12 @@ import numpy as np
 import scipy.linalg as sla
 
 from ..exceptions import ProblemDefinitionError, SingularJacobianError
+from . import _kernels as K
 from ._kernels import dispatchers
 from ._linalg import DenseSolver, make_solver
 from ._problem import _H, Namespace, real_rows
 
-__all__ = ["GenericWorkspace", "DenseWorkspace", "workspace", "Step", "Trial"]
+__all__ = ["GenericWorkspace", "DenseWorkspace", "workspace", "Step", "Trial", "Drive"]
 
 _EPS = np.finfo(float).eps
 _MIN_PIVOT_RATIO = 1e4 * _EPS  # below it a factorisation gets the condition estimate
@@ -95,6 +99,37 @@ class Trial(NamedTuple):
     nbar: float = math.nan
     dd: float = math.nan
     nnew: float = math.nan
+
+
+class Drive(NamedTuple):
+    """How a compiled run of the damped iteration (:meth:`DenseWorkspace.drive`) ended.
+
+    ``code`` is one of the ``DRIVE_*`` exits of :func:`~spectral_bulk.newton._kernels._drive_py`.
+    ``u`` is the state (for ``DRIVE_TRIAL_CONVERGED`` the accepted trial point), ``F`` and
+    ``A`` the residual and coefficients there, ``dx`` and ``dxbar`` the last Newton and
+    simplified corrections, ``solver`` the last factorisation, ``A_step`` the coefficients
+    it was made from, ``ndx`` its update norm; ``njev``, ``nfev`` and the three record
+    lists count and hold what the run did.  For ``DRIVE_HAND_BACK`` these describe the top
+    of the iteration where the Python loop goes on, with damping factor ``lam`` and the
+    previous iteration's ``prev = (ndx, dxbar, lam)`` (or ``None``).
+    """
+
+    code: int
+    u: np.ndarray
+    F: np.ndarray
+    A: np.ndarray
+    dx: np.ndarray
+    dxbar: np.ndarray
+    solver: object
+    A_step: np.ndarray
+    ndx: float
+    njev: int
+    nfev: int
+    rnorms: list
+    unorms: list
+    damping: list
+    lam: float
+    prev: tuple | None
 
 
 def _snorm(dx, w):
@@ -328,6 +363,60 @@ class DenseWorkspace(GenericWorkspace):
         if not finite:
             return Trial(trial, Ft, At, False)
         return Trial(trial, Ft, At, True, dxbar, nbar, dd, nnew)
+
+    def drive(self, u, F, A, lam):
+        """The damped iteration from ``u`` (``F, A`` there; damping factor ``lam``), compiled.
+
+        Applies to systems small enough for the fused step (``_SMALL_LU`` unknowns);
+        returns ``None`` otherwise.  See :func:`~spectral_bulk.newton._kernels._drive_py`:
+        the kernel returns here only to have the callbacks evaluated.
+        """
+        if self.generic or u.shape[0] > _SMALL_LU:
+            return None
+        c, opts, k = self.c, self.opts, self.k
+        nf, na, n = c["nf"], c["na"], c["n"]
+        size = u.shape[0]
+        V = np.empty((8, size))
+        V[0], V[4] = u, F
+        Ab = np.empty((2, nf, nf, na, n))
+        Ab[0] = A
+        J = np.empty((size, size), order="F")
+        piv = np.empty(size, dtype=np.int32)
+        W = np.empty((2, nf))
+        H = np.empty((3, opts.max_iter + 1))
+        S = np.zeros(11)
+        S[K.S_LAM], S[K.S_TOL], S[K.S_LAMBDA_MIN] = lam, opts.tol, opts.lambda_min
+        S[K.S_MIN_RATIO], S[K.S_H] = _MIN_PIVOT_RATIO, _H
+        I = np.zeros(K.I_TOP + 4, dtype=np.int64)
+        I[K.I_MAX_ITER] = opts.max_iter
+        const = (c["dense"], c["rowsums"], self.problem.scales, c["dstack"], c["buf"])
+        code = k.drive(c["cs"]["rowbuf"], V, Ab, J, piv, W, H, S, I, *const)
+        while code == K.DRIVE_EVALUATE:
+            try:
+                rows = self._rows()
+            except ProblemDefinitionError:
+                raise
+            except (ValueError, TypeError, IndexError):
+                self.generic = True  # as in linearize: the Python loop and generic path go on
+                code = K.DRIVE_HAND_BACK
+                break
+            code = k.drive(rows, V, Ab, J, piv, W, H, S, I, *const)
+        cur = int(I[K.I_CUR])
+        if code == K.DRIVE_HAND_BACK:  # from the top of the iteration
+            njev, nr, nu, nd = (int(v) for v in I[K.I_TOP:K.I_TOP + 4])
+            prev = (float(S[K.S_NDX_PREV]), V[K.V_DXBAR_PREV], float(S[K.S_LAM_PREV])) \
+                if I[K.I_HAS_PREV] else None
+            return Drive(code, V[cur], V[4 + cur], Ab[cur], None, None, None, None,
+                         np.nan, njev, int(I[K.I_NFEV]), H[0, :nr].tolist(), H[1, :nu].tolist(),
+                         H[2, :nd].tolist(), float(S[K.S_LAM_TOP]), prev)
+        solver = DenseSolver.from_factors(J, piv, V[K.V_RSCALE], S[K.S_ANORM], False)
+        # the step was made at the state, or, once a trial point was accepted, at the one before
+        A_step = Ab[cur] if code in (K.DRIVE_STEP_CONVERGED, K.DRIVE_LAMBDA_MIN) else Ab[1 - cur]
+        # views: the buffers are this call's own
+        return Drive(code, V[cur], V[4 + cur], Ab[cur], V[K.V_DX], V[K.V_DXBAR], solver, A_step,
+                     float(S[K.S_NDX]), int(I[K.I_NJEV]),
+                     int(I[K.I_NFEV]), H[0, :I[K.I_NR]].tolist(), H[1, :I[K.I_NU]].tolist(),
+                     H[2, :I[K.I_ND]].tolist(), float(S[K.S_LAM]), None)
 
     def residual(self, u):
         if self.generic:
