@@ -12,8 +12,10 @@ The kernels are plain Python functions ``_<name>_py``; :func:`dispatchers` gives
 compiled versions (``dispatchers().<name>``).  Two more steps of the Newton iteration are
 fused the same way: the correction after the LAPACK factorisation (``newton_update``)
 and everything the damping test needs at a trial point (``trial_point``,
-``after_trial``).  The tests compare each compiled kernel with its plain body and with
-the generic path's numpy functions (:func:`prepare_dense_reference`) or LAPACK.  numba
+``after_trial``).  For small systems the whole damped iteration is one kernel
+(``drive``: :func:`_drive_py`), and the certificate's measures another (``certificate``).
+The tests compare each compiled kernel with its plain body and with the generic path's
+numpy functions (:func:`prepare_dense_reference`), LAPACK, or the Python loop.  numba
 is imported when a kernel is first needed, so importing the package stays cheap.
 """
 
@@ -561,8 +563,9 @@ def _drive_py(rows, V, Ab, J, piv, W, H, S, I, DT, R, scales, dstack, buf):
     ``DRIVE_HAND_BACK``: something the compiled path leaves to the Python loop (a
     non-finite residual or coefficient, a factorisation that needs the condition
     estimate, a non-finite correction), which goes on from the top of the iteration:
-    ``I[I_TOP]`` holds the counters there (``njev, nr, nu, nd`` in ``I[I_TOP:]``...) and
-    ``S[S_LAM_TOP]`` the damping factor.
+    ``I[I_TOP:I_TOP + 4]`` hold the counters ``njev, nr, nu, nd`` there and
+    ``S[S_LAM_TOP]`` the damping factor (the state, its residual and coefficients are
+    still in their rows, and ``nfev`` counts every evaluation made).
     """
     size = V.shape[1]
     tol, lambda_min, min_ratio = S[S_TOL], S[S_LAMBDA_MIN], S[S_MIN_RATIO]

@@ -8,6 +8,11 @@ when the simplified correction ``dxbar = -J(u)^{-1} F(u + lam dx)`` satisfies
 ``||dxbar|| < (1 - lam/4) ||dx||``; otherwise ``lam`` is reduced using the local
 Lipschitz estimate, and a too-small ``lam`` means the iteration diverges from
 this guess.  Norms are the scaled update norm defined in :class:`NewtonOptions`.
+
+For small one-dimensional systems the same iteration runs compiled
+(:func:`~spectral_bulk.newton._kernels._drive_py`, through the workspace's ``drive``);
+a change to the loop below must be made there too (``tests/test_workspace.py``
+demands that the two agree bit for bit).
 """
 
 import dataclasses

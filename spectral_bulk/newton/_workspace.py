@@ -12,6 +12,8 @@ workspaces implement the same contract:
   (:mod:`._kernels`).  It computes the same quantities as the generic one (the
   tests compare them); at one-dimensional sizes it removes most of the per-iteration
   cost that is not the user's own residual.
+  For small systems it also runs the whole damped iteration in one compiled kernel
+  (:meth:`DenseWorkspace.drive`), returning to Python only for the callbacks.
 
 Contract (``ws`` is a workspace bound to a problem and its parameters).  The Newton
 loop uses the two coarse operations; the fine ones are their parts (and what other
