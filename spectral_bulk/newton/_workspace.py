@@ -65,6 +65,7 @@ _MIN_PIVOT_RATIO = 1e4 * _EPS  # below it a factorisation gets the condition est
 #: side: the kernel's LU 1.0 / 2.7 us against getrf's 1.3 / 3.3 us at 10 / 17 unknowns; on
 #: par near 30; getrf twice as fast at 64).
 _SMALL_LU = 24
+_DRIVE_MAX_ITER = 10_000  # DenseWorkspace.drive preallocates its records (3 floats per iteration)
 
 
 class Step(NamedTuple):
@@ -369,11 +370,12 @@ class DenseWorkspace(GenericWorkspace):
     def drive(self, u, F, A, lam):
         """The damped iteration from ``u`` (``F, A`` there; damping factor ``lam``), compiled.
 
-        Applies to systems small enough for the fused step (``_SMALL_LU`` unknowns);
-        returns ``None`` otherwise.  See :func:`~spectral_bulk.newton._kernels._drive_py`:
-        the kernel returns here only to have the callbacks evaluated.
+        Applies to systems small enough for the fused step (``_SMALL_LU`` unknowns) and
+        iteration limits up to ``_DRIVE_MAX_ITER`` (its records are preallocated); returns
+        ``None`` otherwise.  See :func:`~spectral_bulk.newton._kernels._drive_py`: the
+        kernel returns here only to have the callbacks evaluated.
         """
-        if self.generic or u.shape[0] > _SMALL_LU:
+        if self.generic or u.shape[0] > _SMALL_LU or self.opts.max_iter > _DRIVE_MAX_ITER:
             return None
         c, opts, k = self.c, self.opts, self.k
         nf, na, n = c["nf"], c["na"], c["n"]
